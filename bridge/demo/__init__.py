@@ -1,0 +1,1 @@
+"""Bundled demo data: sight-reading scores of music-school students."""

@@ -1,0 +1,71 @@
+"""The reconciliation: the one object every renderer reads."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from enum import Enum
+
+from ..compile import Key
+
+
+class Verdict(str, Enum):
+    AGREE = "agree"
+    EXPLAINED = "explained"
+    UNEXPLAINED = "unexplained"
+
+    def __str__(self) -> str:
+        return self.value
+
+
+@dataclass(frozen=True)
+class Estimate:
+    estimate: float
+    se: float
+
+
+@dataclass(frozen=True)
+class QuantityRow:
+    key: Key
+    wide_name: str
+    long_name: str
+    sem: Estimate
+    mixed: Estimate
+    allowed_gap: float
+    verdict: Verdict
+
+    @property
+    def difference(self) -> float:
+        return self.sem.estimate - self.mixed.estimate
+
+
+@dataclass(frozen=True)
+class Finding:
+    """Something the tool noticed on the way: a refit, a captured library message, a note."""
+
+    code: str
+    library: str | None
+    message: str
+
+
+@dataclass(frozen=True)
+class Reconciliation:
+    """Everything the tool concluded about one description."""
+
+    description: str
+    verdict: Verdict
+    quantities: tuple[QuantityRow, ...]
+    timing: dict
+    log_likelihood: dict[str, float]
+    referee_checks: tuple[dict, ...]
+    refits: tuple[dict, ...]
+    findings: tuple[Finding, ...]
+    data: dict
+    tolerance: str
+    specifications: dict[str, str]
+    caution: str
+
+    @property
+    def exit_code(self) -> int:
+        return 3 if self.verdict is Verdict.UNEXPLAINED else 0
+
+    def row(self, key: Key) -> QuantityRow:
+        return next(r for r in self.quantities if r.key == key)

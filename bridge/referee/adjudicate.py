@@ -1,0 +1,141 @@
+"""Decide which solution is the maximum, refit a library that stopped short, and attach standard errors."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..compile import CompiledGrowth, GrowthParameters, Key, LongDesign
+from ..fit import FitOutcome, fit_mixed, fit_sem
+from .hessian import fixed_standard_errors, variance_standard_errors
+from .likelihood import Referee
+
+NEAR_SINGULAR = 1e-4  # smallest/largest eigenvalue of the person-effect covariance
+
+
+@dataclass(frozen=True)
+class Refit:
+    """One refit the referee ordered, with the criterion before and after (user's scale)."""
+
+    library: str
+    reason: str
+    before: float
+    after: float
+    kept: bool
+
+
+@dataclass(frozen=True)
+class LikelihoodCheck:
+    """The referee's reproduction of a library's own log-likelihood at that library's optimum."""
+
+    library: str
+    criterion: str      # "ml" or "reml"
+    library_value: float
+    referee_value: float
+
+    @property
+    def relative_difference(self) -> float:
+        return abs(self.library_value - self.referee_value) / max(1.0, abs(self.library_value))
+
+
+@dataclass(frozen=True)
+class Adjudication:
+    """Both final fits, what the referee did to get them, and their standard errors."""
+
+    sem: FitOutcome
+    mixed: FitOutcome
+    refits: tuple[Refit, ...]
+    checks: tuple[LikelihoodCheck, ...]
+    log_likelihood: dict[str, float]
+    sem_se: dict[Key, float]
+    mixed_se: dict[Key, float]
+
+
+def _tolerance(value: float) -> float:
+    return max(1e-4, 1e-7 * abs(value))
+
+
+class _Judge:
+    def __init__(self, compiled: CompiledGrowth, reml: bool):
+        self.compiled, self.reml = compiled, reml
+        self.sem_referee = Referee(compiled.wave_design)
+        self.exact_referee = Referee(compiled.exact_design)
+        self.refits: list[Refit] = []
+
+    def sem_score(self, params: GrowthParameters) -> float:
+        return self.sem_referee.log_likelihood(params) + self.compiled.scaling.log_jacobian(self.sem_referee.n_obs)
+
+    def mixed_score(self, params: GrowthParameters) -> float:
+        shift = (self.compiled.reml_log_jacobian() if self.reml
+                 else self.compiled.scaling.log_jacobian(self.exact_referee.n_obs))
+        return self.exact_referee.criterion(params, self.reml) + shift
+
+    def better(self, library: str, current: FitOutcome, candidate: GrowthParameters, reason: str, refit) -> FitOutcome:
+        """Refit `library` from `candidate` when the candidate scores higher under its own criterion."""
+        score = self.sem_score if library == "semopy" else self.mixed_score
+        before, rival = score(current.params), score(candidate)
+        if not rival > before + _tolerance(before):
+            return current
+        new = refit(candidate)
+        after = score(new.params)
+        kept = after > before
+        self.refits.append(Refit(library, reason.format(gap=rival - before), before, after, kept))
+        return new if kept else current
+
+
+def _boundary_candidate(compiled: CompiledGrowth, mixed: FitOutcome, reml: bool) -> FitOutcome | None:
+    eig = np.linalg.eigvalsh(mixed.params.cov)
+    if len(eig) < 2 or (eig.min() > NEAR_SINGULAR * max(eig.max(), 1e-12) and mixed.reported_success):
+        return None
+    return fit_mixed(compiled, reml, random_terms=1)
+
+
+def adjudicate(compiled: CompiledGrowth, sem: FitOutcome, mixed: FitOutcome, reml: bool) -> Adjudication:
+    """Compare both solutions under each library's own model; refit the one that stopped short."""
+    judge = _Judge(compiled, reml)
+    boundary = _boundary_candidate(compiled, mixed, reml)
+    if boundary is not None:
+        mixed = judge.better("statsmodels", mixed, boundary.params,
+                             "the boundary solution (person-effect covariance of rank 1) scores {gap:.4g} higher",
+                             lambda p: fit_mixed(compiled, reml, start=p))
+    sem = judge.better("semopy", sem, mixed.params,
+                       "the statsmodels solution scores {gap:.4g} higher under the wide-form likelihood",
+                       lambda p: fit_sem(compiled, start=p))
+    if compiled.equal_residuals:
+        mixed = judge.better("statsmodels", mixed, sem.params,
+                             "the semopy solution scores {gap:.4g} higher under the long-form criterion",
+                             lambda p: fit_mixed(compiled, reml, start=p))
+    checks = (LikelihoodCheck("semopy", "ml", sem.own_log_likelihood, judge.sem_score(sem.params)),
+              LikelihoodCheck("statsmodels", "reml" if reml else "ml", mixed.own_log_likelihood,
+                              judge.mixed_score(mixed.params)))
+    exact_shift = compiled.scaling.log_jacobian(judge.exact_referee.n_obs)
+    log_likelihood = {"sem": sem.own_log_likelihood, "mixed": mixed.own_log_likelihood,
+                      "referee_at_sem": judge.exact_referee.log_likelihood(sem.params) + exact_shift,
+                      "referee_at_mixed": judge.exact_referee.log_likelihood(mixed.params) + exact_shift}
+    return Adjudication(sem=sem, mixed=mixed, refits=tuple(judge.refits), checks=checks,
+                        log_likelihood=log_likelihood,
+                        sem_se=standard_errors(compiled, judge.sem_referee, sem.params, compiled.equal_residuals, False),
+                        mixed_se=standard_errors(compiled, judge.exact_referee, mixed.params, True, reml))
+
+
+def variance_keys(compiled: CompiledGrowth, equal_residuals: bool) -> list[list[Key]]:
+    """For each free variance parameter, the quantity keys it stands for."""
+    terms = compiled.random_terms
+    keys = [[f"var.{a.value}" if i == j else f"cov.{terms[j].value}.{a.value}"]
+            for i, a in enumerate(terms) for j in range(i + 1)]
+    residual_keys = [k for k in compiled.keys if k.startswith("var.residual")]
+    if equal_residuals:
+        return keys + [residual_keys]
+    return keys + [[k] for k in residual_keys]
+
+
+def standard_errors(compiled: CompiledGrowth, referee: Referee, params: GrowthParameters,
+                    equal_residuals: bool, reml: bool) -> dict[Key, float]:
+    """Natural-scale standard errors of every quantity from the referee's observed information."""
+    factors = compiled.scale_factors()
+    internal: dict[Key, float] = dict(zip((c.key for c in compiled.fixed_columns),
+                                          fixed_standard_errors(referee, params)))
+    ses = variance_standard_errors(referee, params, equal_residuals, reml)
+    for keys, se in zip(variance_keys(compiled, equal_residuals), ses):
+        internal.update({k: float(se) for k in keys})
+    return {k: internal[k] * factors[k] for k in compiled.keys}

@@ -1,0 +1,1 @@
+"""Stage 7: pure renderings of a reconciliation (no statistics here)."""

@@ -1,0 +1,40 @@
+"""The JSON contract (docs/json.md): a pure function of the reconciliation."""
+from __future__ import annotations
+
+import json
+import math
+
+from ..reconcile import Reconciliation
+
+SCHEMA_VERSION = 1
+
+
+def _number(value: float) -> float | None:
+    return float(value) if value is not None and math.isfinite(value) else None
+
+
+def to_dict(rec: Reconciliation) -> dict:
+    """The reconciliation as plain JSON-ready data (non-finite numbers become null)."""
+    return {
+        "schema": SCHEMA_VERSION,
+        "description": rec.description,
+        "verdict": rec.verdict.value,
+        "timing": rec.timing,
+        "data": rec.data,
+        "log_likelihood": {k: _number(v) for k, v in rec.log_likelihood.items()},
+        "referee_checks": list(rec.referee_checks),
+        "refits": list(rec.refits),
+        "quantities": [{"key": r.key, "wide_name": r.wide_name, "long_name": r.long_name,
+                        "sem": {"estimate": _number(r.sem.estimate), "se": _number(r.sem.se)},
+                        "mixed": {"estimate": _number(r.mixed.estimate), "se": _number(r.mixed.se)},
+                        "difference": _number(r.difference), "allowed_gap": _number(r.allowed_gap),
+                        "verdict": r.verdict.value} for r in rec.quantities],
+        "explanations": [],
+        "findings": [{"code": f.code, "library": f.library, "message": f.message} for f in rec.findings],
+        "tolerance": rec.tolerance,
+        "caution": rec.caution,
+    }
+
+
+def to_json(rec: Reconciliation) -> str:
+    return json.dumps(to_dict(rec), indent=2, allow_nan=False) + "\n"

@@ -1,0 +1,62 @@
+"""The side-by-side table for the terminal (rich). Pure: reads the reconciliation, computes nothing."""
+from __future__ import annotations
+
+import math
+
+from rich.console import Console, Group
+from rich.table import Table
+from rich.text import Text
+
+from ..reconcile import Reconciliation, Verdict
+
+_STYLE = {Verdict.AGREE: "green", Verdict.EXPLAINED: "yellow", Verdict.UNEXPLAINED: "bold red"}
+
+
+def _fmt(value: float) -> str:
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    return f"{value:.4g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.2e}"
+
+
+def quantity_table(rec: Reconciliation) -> Table:
+    table = Table(title="Each quantity in both frameworks (SEM = wide form, mixed = long form)",
+                  title_justify="left", header_style="bold")
+    table.add_column("quantity", no_wrap=True)
+    for heading in ("SEM", "SE", "mixed", "SE", "gap"):
+        table.add_column(heading, justify="right", no_wrap=True)
+    table.add_column("verdict", no_wrap=True)
+    for row in rec.quantities:
+        table.add_row(row.key, _fmt(row.sem.estimate), _fmt(row.sem.se), _fmt(row.mixed.estimate),
+                      _fmt(row.mixed.se), _fmt(row.difference), Text(row.verdict.value, style=_STYLE[row.verdict]))
+    return table
+
+
+def _summary_lines(rec: Reconciliation) -> list[str]:
+    t, d, ll = rec.timing, rec.data, rec.log_likelihood
+    lines = [f"Description: {rec.description}",
+             f"Timing: {t['design']} ({t['persons']} persons, {t['occasions']} occasions, "
+             f"waves {', '.join(f'{w:g}' for w in t['waves'])}; rounding onto waves moves times by up to "
+             f"{t['displacement']['max']:.3g}, {t['displacement']['mean']:.3g} on average)",
+             f"Estimation: {d['method']}, {d['missing']}; persons used {d['persons_used']} of {d['persons_read']}, "
+             f"occasions used {d['occasions_used']} of {d['occasions_read']}"]
+    for p in d["predictors"]:
+        if p["level"] is not None:
+            lines.append(f"Predictor {p['key']}: 1 when {p['column']} is {p['level']!r}, 0 at the reference "
+                         f"level {p['reference']!r}")
+    lines.append(f"Log-likelihood: semopy {ll['sem']:.6f}, statsmodels {ll['mixed']:.6f}; referee on exact times "
+                 f"at the SEM solution {ll['referee_at_sem']:.6f}, at the mixed solution {ll['referee_at_mixed']:.6f}")
+    for c in rec.referee_checks:
+        lines.append(f"Referee check ({c['library']}, {c['criterion']}): library {c['library_value']:.6f}, "
+                     f"referee {c['referee_value']:.6f}, relative difference {c['relative_difference']:.1e}")
+    return lines
+
+
+def render(rec: Reconciliation, console: Console) -> None:
+    """Print the reconciliation: summary, table, findings, verdict, caution."""
+    console.print(Group(*(Text(line) for line in _summary_lines(rec))))
+    console.print(quantity_table(rec))
+    for finding in rec.findings:
+        console.print(Text(f"Note ({finding.library or 'sembridge'}): {finding.message}"))
+    console.print(Text(f"Tolerance: {rec.tolerance}.", style="dim"))
+    console.print(Text(f"Overall verdict: {rec.verdict.value}", style=_STYLE[rec.verdict]))
+    console.print(Text(f"Caution: {rec.caution}", style="italic"))

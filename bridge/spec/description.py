@@ -1,0 +1,63 @@
+"""The frozen model description: the single input of the whole pipeline."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .vocabulary import Kind, Layout, Method, Missing, Residuals, Shape, Term, terms_of
+
+
+@dataclass(frozen=True)
+class DataSection:
+    """Where the data are and which columns play which role."""
+
+    path: Path
+    layout: Layout
+    person: str
+    time: str | None = None
+    outcome: str | None = None
+    columns: tuple[tuple[str, float], ...] = ()
+
+    @property
+    def column_times(self) -> dict[str, float]:
+        return dict(self.columns)
+
+
+@dataclass(frozen=True)
+class ModelSection:
+    """The growth model, stated once for both frameworks."""
+
+    kind: Kind = Kind.GROWTH
+    shape: Shape = Shape.LINEAR
+    random: tuple[Term, ...] = (Term.INTERCEPT, Term.SLOPE)
+    predictors: tuple[str, ...] = ()
+    residuals: Residuals = Residuals.EQUAL
+    time_origin: float = 0.0
+    reference_levels: tuple[tuple[str, str], ...] = ()
+
+    @property
+    def terms(self) -> tuple[Term, ...]:
+        return terms_of(self.shape)
+
+
+@dataclass(frozen=True)
+class EstimationSection:
+    """How both forms are estimated."""
+
+    method: Method = Method.ML
+    missing: Missing = Missing.FULL_INFORMATION
+    waves: tuple[float, ...] | None = None
+
+
+@dataclass(frozen=True)
+class Description:
+    """A complete, validated model description. Build it with :func:`bridge.load`."""
+
+    data: DataSection
+    model: ModelSection = field(default_factory=ModelSection)
+    estimation: EstimationSection = field(default_factory=EstimationSection)
+    source: Path | None = None
+
+    @property
+    def label(self) -> str:
+        return self.source.name if self.source else "<description>"

@@ -1,0 +1,62 @@
+"""Closed vocabularies of the model description, as enums.
+
+Each enum's values are the exact words a user writes in the YAML file.
+"""
+from __future__ import annotations
+
+from enum import Enum
+
+
+class _Words(str, Enum):
+    @classmethod
+    def words(cls) -> tuple[str, ...]:
+        return tuple(member.value for member in cls)
+
+    def __str__(self) -> str:
+        return self.value
+
+
+class Layout(_Words):
+    LONG = "long"
+    WIDE = "wide"
+
+
+class Kind(_Words):
+    GROWTH = "growth"
+
+
+class Shape(_Words):
+    LINEAR = "linear"
+    QUADRATIC = "quadratic"
+
+
+class Term(_Words):
+    """A growth term: the power of time it multiplies."""
+
+    INTERCEPT = "intercept"
+    SLOPE = "slope"
+    QUADRATIC = "quadratic"
+
+    @property
+    def power(self) -> int:
+        return list(Term).index(self)
+
+
+class Residuals(_Words):
+    EQUAL = "equal"
+    PER_WAVE = "per-wave"
+
+
+class Method(_Words):
+    ML = "ml"
+    REML = "reml"
+
+
+class Missing(_Words):
+    FULL_INFORMATION = "full-information"
+    COMPLETE_CASES = "complete-cases"
+
+
+def terms_of(shape: Shape) -> tuple[Term, ...]:
+    """The growth terms a shape uses, in order of the power of time."""
+    return (Term.INTERCEPT, Term.SLOPE) if shape is Shape.LINEAR else tuple(Term)
