@@ -16,7 +16,7 @@ from .render import json as json_render
 from .render import terminal
 from .spec import Method
 
-app = typer.Typer(add_completion=False, no_args_is_help=True,
+app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="Fit one longitudinal model as a wide-format SEM and a long-format mixed model, and "
                        "reconcile the two.")
 _state = {"debug": False}
@@ -97,4 +97,12 @@ def compile_command(spec: Path = typer.Argument(..., help="The YAML model descri
 
 
 def main() -> None:
-    app()
+    """Entry point: unexpected failures also end in one line (exit 1) unless --debug is given."""
+    try:
+        app()
+    except Exception as exc:  # a bug in sembridge or a library, not the user's input
+        if "--debug" in sys.argv:
+            raise
+        typer.echo(f"sembridge: internal error: {exc.__class__.__name__}: {str(exc).splitlines()[0] if str(exc) else ''}"
+                   " (rerun with --debug for the traceback)", err=True)
+        sys.exit(1)

@@ -98,7 +98,8 @@ def _predictor_design(desc: Description, per_person: pd.DataFrame, label: str):
         if raw.isna().any():
             raise DataError(f"{label}: predictor '{name}' has missing values for "
                             f"{int(raw.isna().sum())} person(s); both forms need it for every person")
-        if pd.api.types.is_numeric_dtype(raw) and not pd.api.types.is_bool_dtype(raw):
+        numeric = pd.api.types.is_numeric_dtype(raw) and not pd.api.types.is_bool_dtype(raw)
+        if numeric and name not in desc.model.categorical:
             numeric = raw.to_numpy(dtype=float)
             if np.isinf(numeric).any():
                 raise DataError(f"{label}: predictor '{name}' contains infinite values")
@@ -107,7 +108,8 @@ def _predictor_design(desc: Description, per_person: pd.DataFrame, label: str):
             columns.append(PredictorColumn(key=name, source=name))
             values.append(numeric)
             continue
-        levels = sorted(raw.astype(str).unique())
+        raw = raw.map(lambda v: f"{v:g}" if isinstance(v, float) else str(v))
+        levels = sorted(raw.unique(), key=lambda v: (_as_number(v), v))
         if len(levels) < 2:
             raise DataError(f"{label}: categorical predictor '{name}' has a single level ({levels[0]!r})")
         reference = references.get(name, levels[0])
@@ -118,6 +120,13 @@ def _predictor_design(desc: Description, per_person: pd.DataFrame, label: str):
             values.append((raw.astype(str) == level).to_numpy(dtype=float))
     matrix = np.column_stack(values) if values else np.zeros((len(per_person), 0))
     return tuple(columns), matrix
+
+
+def _as_number(text: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        return float("inf")
 
 
 def _check_invariant_predictors(long: pd.DataFrame, predictors: tuple[str, ...], label: str) -> None:

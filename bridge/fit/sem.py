@@ -78,7 +78,7 @@ def fit_sem(compiled: CompiledGrowth, start: GrowthParameters | None = None) -> 
     values = dict(zip(_active_names(model), model.param_vals))
     params = _rescale(compiled.from_sem_values(values), 1.0 / factor)
     n_obs = int(np.isfinite(compiled.sem_frame.filter(regex=r"^y").to_numpy()).sum())
-    internal = -0.5 * (result.fun + n_obs * LOG_2PI) - n_obs * np.log(factor)
+    internal = -0.5 * (result.fun + n_obs * LOG_2PI) + n_obs * np.log(factor)
     own = internal + compiled.scaling.log_jacobian(n_obs)
     return FitOutcome(library="semopy", params=params, own_log_likelihood=float(own),
                       reported_success=bool(result.success), messages=tuple(dict.fromkeys(messages)),

@@ -67,6 +67,6 @@ def reconcile(compiled: CompiledGrowth, adj: Adjudication, tolerance: Tolerance 
                               "referee_value": float(c.referee_value),
                               "relative_difference": float(c.relative_difference)} for c in adj.checks),
         refits=tuple({"library": r.library, "reason": r.reason, "before": float(r.before), "after": float(r.after),
-                      "kept": r.kept} for r in adj.refits),
+                      "kept": bool(r.kept)} for r in adj.refits),
         findings=_findings(adj), data=_data_summary(compiled, adj), tolerance=tolerance.describe(),
         specifications=specifications(compiled, reml), caution=CAUTION)

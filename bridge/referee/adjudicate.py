@@ -78,7 +78,7 @@ class _Judge:
             return current
         new = refit(candidate)
         after = score(new.params)
-        kept = after > before
+        kept = bool(after > before)
         self.refits.append(Refit(library, reason.format(gap=rival - before), before, after, kept))
         return new if kept else current
 

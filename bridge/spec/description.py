@@ -31,6 +31,7 @@ class ModelSection:
     shape: Shape = Shape.LINEAR
     random: tuple[Term, ...] = (Term.INTERCEPT, Term.SLOPE)
     predictors: tuple[str, ...] = ()
+    categorical: tuple[str, ...] = ()   # predictors coded as categories even when their values are numbers
     residuals: Residuals = Residuals.EQUAL
     time_origin: float = 0.0
     reference_levels: tuple[tuple[str, str], ...] = ()

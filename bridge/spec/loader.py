@@ -19,7 +19,8 @@ from .vocabulary import Kind, Layout, Method, Missing, Residuals, Shape, Term, t
 _KEYS = {
     "": {"data", "model", "estimation"},
     "data": {"path", "layout", "person", "time", "outcome", "columns"},
-    "model": {"kind", "shape", "random", "predictors", "residuals", "time_origin", "reference_levels"},
+    "model": {"kind", "shape", "random", "predictors", "categorical", "residuals", "time_origin",
+              "reference_levels"},
     "estimation": {"method", "missing", "waves"},
 }
 _MISSING = object()
@@ -162,10 +163,14 @@ def _model_section(r: _Reader) -> ModelSection:
     if not random_words:
         r.problem("model.random", "at least one growth term that varies across persons", random_words)
     predictors = r.text_list("model.predictors")
+    categorical = r.text_list("model.categorical")
+    for name in categorical:
+        if name not in predictors:
+            r.problem("model.categorical", "predictors listed in model.predictors", name)
     origin = r.number("model.time_origin", r.get("model.time_origin", 0.0))
     references = _reference_levels(r, predictors)
     return ModelSection(kind=kind, shape=shape, random=tuple(sorted(random, key=lambda t: t.power)),
-                        predictors=tuple(predictors), residuals=r.word("model.residuals", Residuals, "equal"),
+                        predictors=tuple(predictors), categorical=tuple(categorical), residuals=r.word("model.residuals", Residuals, "equal"),
                         time_origin=origin or 0.0, reference_levels=references)
 
 
