@@ -1,0 +1,26 @@
+"""Shared helpers: write a data frame and a description into a temporary folder."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import pandas as pd
+import pytest
+import yaml
+
+
+def write_case(folder: Path, frame: pd.DataFrame, description: dict, name: str = "model") -> Path:
+    """Write `frame` as CSV and `description` as YAML (data.path filled in); return the YAML path."""
+    data_path = folder / f"{name}.csv"
+    frame.to_csv(data_path, index=False)
+    description = {**description, "data": {**description["data"], "path": data_path.name}}
+    spec_path = folder / f"{name}.yaml"
+    spec_path.write_text(yaml.safe_dump(description, sort_keys=False), encoding="utf-8")
+    return spec_path
+
+
+@pytest.fixture
+def case(tmp_path):
+    """`case(frame, description)` -> path of a ready-to-run YAML description."""
+    def make(frame: pd.DataFrame, description: dict, name: str = "model") -> Path:
+        return write_case(tmp_path, frame, description, name)
+    return make
