@@ -10,6 +10,7 @@ import typer
 from rich.console import Console
 
 from . import pipeline
+from .demo import files as demo_files
 from .compile.texts import specifications
 from .errors import SembridgeError
 from .render import json as json_render
@@ -94,6 +95,22 @@ def compile_command(spec: Path = typer.Argument(..., help="The YAML model descri
     console.rule("which parameter is which")
     for c in compiled.correspondence:
         console.print(f"{c.key}\n    wide: {c.wide}\n    long: {c.long}", markup=False, highlight=False)
+
+
+@app.command("demo")
+def demo_command(
+    out: Path = typer.Option(Path("sembridge-demo"), "--out", help="Folder for the demo files and results."),
+    quiet: bool = typer.Option(False, "--quiet", help="No progress messages."),
+) -> None:
+    """Run the main job on the bundled music-school example and say where the results are."""
+    with _guarded():
+        spec = demo_files.copy_demo(out)
+        result = pipeline.run(spec, progress=_progress(sys.stderr.isatty() and not quiet))
+    terminal.render(result, Console(width=None if sys.stdout.isatty() else 120))
+    result_path = spec.with_suffix(".json")
+    result_path.write_text(json_render.to_json(result), encoding="utf-8")
+    typer.echo(f"\nDemo description and data: {spec.parent}\nResult as JSON: {result_path}")
+    raise typer.Exit(result.exit_code)
 
 
 def main() -> None:
