@@ -51,12 +51,26 @@ class EstimationSection:
 
 
 @dataclass(frozen=True)
+class FormSettings:
+    """Settings one form uses instead of the shared ones, to reproduce two separate analyses.
+
+    The form's time is (time - time_origin) * time_scale; unset fields follow the shared setting.
+    """
+
+    missing: Missing | None = None
+    time_origin: float | None = None
+    time_scale: float | None = None
+
+
+@dataclass(frozen=True)
 class Description:
     """A complete, validated model description. Build it with :func:`bridge.load`."""
 
     data: DataSection
     model: ModelSection = field(default_factory=ModelSection)
     estimation: EstimationSection = field(default_factory=EstimationSection)
+    sem_form: FormSettings = field(default_factory=FormSettings)
+    mixed_form: FormSettings = field(default_factory=FormSettings)
     source: Path | None = None
 
     @property

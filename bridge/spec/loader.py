@@ -13,15 +13,18 @@ from typing import Any
 import yaml
 
 from ..errors import DescriptionError
-from .description import DataSection, Description, EstimationSection, ModelSection
+from .description import DataSection, Description, EstimationSection, FormSettings, ModelSection
 from .vocabulary import Kind, Layout, Method, Missing, Residuals, Shape, Term, terms_of
 
 _KEYS = {
-    "": {"data", "model", "estimation"},
+    "": {"data", "model", "estimation", "forms"},
     "data": {"path", "layout", "person", "time", "outcome", "columns"},
     "model": {"kind", "shape", "random", "predictors", "categorical", "residuals", "time_origin",
               "reference_levels"},
     "estimation": {"method", "missing", "waves"},
+    "forms": {"sem", "mixed"},
+    "forms.sem": {"missing", "time_origin", "time_scale"},
+    "forms.mixed": {"missing", "time_origin", "time_scale"},
 }
 _MISSING = object()
 
@@ -198,6 +201,17 @@ def _estimation_section(r: _Reader) -> EstimationSection:
                              missing=r.word("estimation.missing", Missing, "full-information"), waves=waves)
 
 
+def _form(r: _Reader, name: str) -> FormSettings:
+    key = f"forms.{name}"
+    missing = r.get(f"{key}.missing", None)
+    origin, scale = r.get(f"{key}.time_origin", None), r.get(f"{key}.time_scale", None)
+    if scale is not None and r.number(f"{key}.time_scale", scale) is not None and scale <= 0:
+        r.problem(f"{key}.time_scale", "a positive number", scale)
+    return FormSettings(missing=None if missing is None else r.word(f"{key}.missing", Missing, None),
+                        time_origin=None if origin is None else r.number(f"{key}.time_origin", origin),
+                        time_scale=None if scale is None else r.number(f"{key}.time_scale", scale))
+
+
 def load(path: str | Path) -> Description:
     """Read and validate a YAML model description; raise one DescriptionError listing every problem."""
     path = Path(path)
@@ -208,7 +222,9 @@ def load(path: str | Path) -> Description:
     data = _data_section(reader, path.parent)
     model = _model_section(reader)
     estimation = _estimation_section(reader)
+    sem_form, mixed_form = _form(reader, "sem"), _form(reader, "mixed")
     if reader.problems:
         raise DescriptionError(f"{path.name}: " + "; ".join(reader.problems))
     assert data is not None  # every path that leaves data unset records a problem
-    return Description(data=data, model=model, estimation=estimation, source=path.resolve())
+    return Description(data=data, model=model, estimation=estimation, sem_form=sem_form, mixed_form=mixed_form,
+                       source=path.resolve())
