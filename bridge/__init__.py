@@ -3,19 +3,20 @@
 The public API follows the pipeline's stages::
 
     desc = bridge.load("model.yaml")          # the frozen description
-    compiled = bridge.compile_description(desc)  # shaped data + both generated specifications
+    pair = bridge.compile_description(desc)   # shaped data + both generated forms (pair.sem, pair.mixed)
     result = bridge.run(desc)                 # fits, referee, reconciliation
     result.verdict, result.quantities
 """
-from .compile import CompiledGrowth, compile_growth
+from .compile import CompiledGrowth, CompiledPair, Plan, compile_growth, compile_pair
 from .data import ShapedData, shape_data
 from .errors import DataError, DescriptionError, FitError, SembridgeError, SembridgeWarning
-from .pipeline import compile_description, fit_and_adjudicate, run
+from .pipeline import compile_description, evaluate_description, run, shape
 from .reconcile import Reconciliation, Verdict, reconcile
 from .render.json import to_dict
 from .spec import Description, load
 
 __version__ = "0.1.0"
-__all__ = ["CompiledGrowth", "compile_growth", "ShapedData", "shape_data", "DataError", "DescriptionError",
-           "FitError", "SembridgeError", "SembridgeWarning", "compile_description", "fit_and_adjudicate", "run",
+__all__ = ["CompiledGrowth", "CompiledPair", "Plan", "compile_growth", "compile_pair", "shape",
+           "evaluate_description", "ShapedData", "shape_data", "DataError", "DescriptionError",
+           "FitError", "SembridgeError", "SembridgeWarning", "compile_description", "run",
            "Reconciliation", "Verdict", "reconcile", "to_dict", "Description", "load", "__version__"]

@@ -11,11 +11,10 @@ from rich.console import Console
 
 from . import pipeline
 from .demo import files as demo_files
-from .compile.texts import specifications
+from .compile.texts import pair_specifications
 from .errors import SembridgeError
 from .render import json as json_render
 from .render import terminal
-from .spec import Method
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="Fit one longitudinal model as a wide-format SEM and a long-format mixed model, and "
@@ -83,8 +82,8 @@ def reconcile_command(
 def compile_command(spec: Path = typer.Argument(..., help="The YAML model description.")) -> None:
     """Print both generated specifications and the correspondence map, without fitting."""
     with _guarded():
-        compiled = pipeline.compile_description(spec)
-    texts = specifications(compiled, compiled.shaped.description.estimation.method is Method.REML)
+        pair = pipeline.compile_description(spec)
+    texts = pair_specifications(pair)
     console = Console()
     console.rule("wide form: semopy model text")
     console.print(texts["wide"], markup=False, highlight=False)
@@ -93,7 +92,7 @@ def compile_command(spec: Path = typer.Argument(..., help="The YAML model descri
     console.rule("generated names")
     console.print(texts["legend"], markup=False, highlight=False)
     console.rule("which parameter is which")
-    for c in compiled.correspondence:
+    for c in pair.sem.correspondence:
         console.print(f"{c.key}\n    wide: {c.wide}\n    long: {c.long}", markup=False, highlight=False)
 
 
@@ -123,3 +122,7 @@ def main() -> None:
         typer.echo(f"sembridge: internal error: {exc.__class__.__name__}: {str(exc).splitlines()[0] if str(exc) else ''}"
                    " (rerun with --debug for the traceback)", err=True)
         sys.exit(1)
+
+
+if __name__ == "__main__":
+    main()

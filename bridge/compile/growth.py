@@ -11,9 +11,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..data import PredictorColumn, ShapedData
-from ..spec import Residuals, Term
+from ..data import PredictorColumn, ShapedData, complete_cases
+from ..spec import Missing, Residuals, Term
 from .parameters import GrowthParameters, Scaling
+from .plan import Coding, TimeSource
 from .quantities import Key, cov_key, effect_key, mean_key, residual_key, var_key
 
 _TERM_WORDS = {Term.INTERCEPT: ("intercept", "constant"), Term.SLOPE: ("slope", "time"),
@@ -72,11 +73,13 @@ class CompiledGrowth:
     random_terms: tuple[Term, ...]
     fixed_columns: tuple[FixedColumn, ...]
     equal_residuals: bool
+    coding: Coding
     sem_text: str
     sem_frame: pd.DataFrame
     mixed: MixedArrays
     exact_design: LongDesign
     wave_design: LongDesign
+    mixed_design: LongDesign      # what the mixed model is fitted on: exact times, or wave times
     correspondence: tuple[Correspondence, ...]
 
     @property
@@ -164,14 +167,15 @@ def _cov_label(first: Term, second: Term) -> str:
     return f"v{first.power}" if first is second else f"c{first.power}_{second.power}"
 
 
-def _scaling(shaped: ShapedData) -> Scaling:
-    origin = shaped.description.model.time_origin
-    spread = max(np.abs(shaped.times - origin).max(), np.abs(np.asarray(shaped.waves) - origin).max())
+def _scaling(shaped: ShapedData, coding: Coding) -> Scaling:
+    origin = coding.origin
+    spread = coding.scale * max(np.abs(shaped.times - origin).max(), np.abs(np.asarray(shaped.waves) - origin).max())
     x_scale = shaped.predictor_values.std(axis=0) if shaped.predictors else np.zeros(0)
     numeric = np.array([p.level is None for p in shaped.predictors], dtype=bool)
     x_scale = np.where((x_scale > 0) & numeric, x_scale, 1.0)
     return Scaling(y_center=float(shaped.outcome.mean()), y_scale=float(shaped.outcome.std()) / INTERNAL_OUTCOME_SD,
-                   t_origin=origin, t_scale=float(spread) if spread > 0 else 1.0, x_scale=np.asarray(x_scale, float))
+                   t_origin=origin, t_scale=float(spread) if spread > 0 else 1.0, x_scale=np.asarray(x_scale, float),
+                   t_unit=coding.scale)
 
 
 def _fixed_columns(terms: tuple[Term, ...], predictors: tuple[PredictorColumn, ...]) -> tuple[FixedColumn, ...]:
@@ -241,24 +245,36 @@ def _correspondence(shaped, columns, random_terms, equal: bool) -> tuple[Corresp
     return tuple(out)
 
 
-def compile_growth(shaped: ShapedData) -> CompiledGrowth:
-    """Both generated specifications for a shaped growth description."""
+def compile_growth(shaped: ShapedData, coding: Coding | None = None, residuals: Residuals | None = None,
+                   random: tuple[Term, ...] | None = None,
+                   mixed_times: TimeSource = TimeSource.EXACT) -> CompiledGrowth:
+    """Both generated specifications for a shaped growth description.
+
+    The optional arguments override the description (they are how a harmonised
+    plan is compiled): the occasions used and the time coding, the SEM's residual
+    structure, the random terms, and whether the mixed model sees exact or wave times.
+    """
     model = shaped.description.model
-    scaling = _scaling(shaped)
-    terms, random_terms = model.terms, model.random
+    coding = coding or Coding(shaped.description.estimation.missing, model.time_origin)
+    if coding.missing is Missing.COMPLETE_CASES:
+        shaped = complete_cases(shaped)
+    scaling = _scaling(shaped, coding)
+    terms = model.terms
+    random_terms = tuple(t for t in terms if t in (random or model.random))
     columns = _fixed_columns(terms, shaped.predictors)
-    equal = model.residuals is Residuals.EQUAL
+    equal = (residuals or model.residuals) is Residuals.EQUAL
     wave_times = scaling.time(np.asarray(shaped.waves))
     exact = _design(shaped, scaling, shaped.times, columns, random_terms)
     waved = _design(shaped, scaling, np.asarray(shaped.waves)[shaped.wave_index], columns, random_terms)
+    fitted = exact if mixed_times is TimeSource.EXACT else waved
     wide = pd.DataFrame(scaling.outcome(shaped.wide_outcome()), columns=[f"y{i}" for i in range(len(wave_times))])
     for j in range(len(shaped.predictors)):
         wide[f"x{j}"] = shaped.predictor_values[:, j] / scaling.x_scale[j]
-    mixed = MixedArrays(endog=exact.y, exog=exact.X, groups=shaped.person_index, exog_re=exact.Z,
+    mixed = MixedArrays(endog=fitted.y, exog=fitted.X, groups=shaped.person_index, exog_re=fitted.Z,
                         exog_names=tuple(c.mixed_name for c in columns),
                         exog_re_names=tuple(f"k{t.power}" for t in random_terms))
     return CompiledGrowth(shaped=shaped, scaling=scaling, terms=terms, random_terms=random_terms,
-                          fixed_columns=columns, equal_residuals=equal,
+                          fixed_columns=columns, equal_residuals=equal, coding=coding,
                           sem_text=_sem_text(terms, random_terms, columns, len(shaped.predictors), wave_times, equal),
-                          sem_frame=wide, mixed=mixed, exact_design=exact, wave_design=waved,
+                          sem_frame=wide, mixed=mixed, exact_design=exact, wave_design=waved, mixed_design=fitted,
                           correspondence=_correspondence(shaped, columns, random_terms, equal))

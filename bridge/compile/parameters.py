@@ -41,19 +41,23 @@ class GrowthParameters:
 
 @dataclass(frozen=True)
 class Scaling:
-    """Internal scale: y' = (y - y_center) / y_scale, t' = (t - t_origin) / t_scale, x' = x / x_scale."""
+    """Internal scale: y' = (y - y_center) / y_scale, t' = (t - t_origin) * t_unit / t_scale, x' = x / x_scale.
+
+    (t - t_origin) * t_unit is the form's time; quantities are reported per unit of it.
+    """
 
     y_center: float
     y_scale: float
     t_origin: float
     t_scale: float
     x_scale: np.ndarray
+    t_unit: float = 1.0
 
     def outcome(self, y: np.ndarray) -> np.ndarray:
         return (y - self.y_center) / self.y_scale
 
     def time(self, t: np.ndarray) -> np.ndarray:
-        return (t - self.t_origin) / self.t_scale
+        return (t - self.t_origin) * self.t_unit / self.t_scale
 
     def log_jacobian(self, n_observations: int) -> float:
         """Add to an internal-scale log-likelihood to get the user's-scale one."""

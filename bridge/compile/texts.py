@@ -15,7 +15,8 @@ def legend(compiled: CompiledGrowth) -> list[str]:
     lines += [f"x{j} = {p.key} / {s.x_scale[j]:.6g}" + (f" (1 when {p.source} is {p.level!r}, reference "
                                                         f"{p.reference!r})" if p.level else "")
               for j, p in enumerate(shaped.predictors)]
-    lines.append(f"internal time = ({time} - {s.t_origin:g}) / {s.t_scale:.6g}")
+    unit = "" if s.t_unit == 1 else f" * {s.t_unit:.6g}"
+    lines.append(f"internal time = ({time} - {s.t_origin:g}){unit} / {s.t_scale:.6g}")
     lines += [f"f{t.power} = {t.value} growth factor; k{t.power} = internal time ^ {t.power}" for t in compiled.terms]
     return lines
 
@@ -35,3 +36,13 @@ def mixed_text(compiled: CompiledGrowth, reml: bool) -> str:
 
 def specifications(compiled: CompiledGrowth, reml: bool) -> dict[str, str]:
     return {"wide": compiled.sem_text, "long": mixed_text(compiled, reml), "legend": "\n".join(legend(compiled)) + "\n"}
+
+
+def pair_specifications(pair) -> dict[str, str]:
+    """The wide form from the SEM's compilation and the long form from the mixed model's."""
+    reml = pair.plan.reml
+    texts = specifications(pair.sem, reml)
+    texts["long"] = mixed_text(pair.mixed, reml)
+    if not pair.comparable:
+        texts["legend"] += "long form:\n" + "\n".join(legend(pair.mixed)) + "\n"
+    return texts

@@ -1,7 +1,7 @@
 """Stage 2: read the data named by a description, check it, and shape it for both forms."""
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -166,14 +166,10 @@ def _finish(desc: Description, long: pd.DataFrame, label: str, persons_read: int
     if timing.shared_wave_persons:
         raise DataError(f"{label}: {timing.shared_wave_persons} person(s) have two occasions nearest to the same "
                         "wave; give a finer wave grid in estimation.waves")
-    if desc.estimation.missing is Missing.COMPLETE_CASES:
-        complete = np.bincount(codes, minlength=len(persons)) == len(timing.waves)
-        if not complete.any():
-            raise DataError(f"{label}: no person is observed at every wave, so complete cases leave no data")
-        long = long[complete[codes]]
-        codes, persons = pd.factorize(long["_person"], sort=False)
-        times = long["_time"].to_numpy(float)
-        timing, wave_index = classify(codes, times, timing.waves)
+    uses_complete = Missing.COMPLETE_CASES in (desc.estimation.missing, desc.sem_form.missing,
+                                               desc.mixed_form.missing)
+    if uses_complete and not (np.bincount(codes) == len(timing.waves)).any():
+        raise DataError(f"{label}: no person is observed at every wave, so complete cases leave no data")
     _check_enough(desc, long, timing, label)
     per_person = long.groupby("_person", sort=False).first().loc[list(persons)]
     columns, matrix = _predictor_design(desc, per_person, label)
@@ -192,3 +188,17 @@ def _check_enough(desc: Description, long: pd.DataFrame, timing: Timing, label: 
         raise DataError(f"{label}: the outcome is constant ({long['_y'].iloc[0]:g}); there is nothing to model")
     if long["_person"].nunique() < 3:
         raise DataError(f"{label}: found {long['_person'].nunique()} person(s); at least 3 are needed")
+
+
+def complete_cases(shaped: ShapedData) -> ShapedData:
+    """The same data restricted to persons observed at every wave."""
+    keep_person = np.bincount(shaped.person_index, minlength=shaped.n_persons) == len(shaped.waves)
+    if keep_person.all():
+        return shaped
+    keep = keep_person[shaped.person_index]
+    person_index = (np.cumsum(keep_person) - 1)[shaped.person_index[keep]]
+    timing, wave_index = classify(person_index, shaped.times[keep], shaped.waves)
+    return replace(shaped, persons=tuple(p for p, k in zip(shaped.persons, keep_person) if k),
+                   person_index=person_index, times=shaped.times[keep], wave_index=wave_index,
+                   outcome=shaped.outcome[keep], predictor_values=shaped.predictor_values[keep_person],
+                   timing=replace(timing, grid_source=shaped.timing.grid_source))

@@ -1,72 +1,38 @@
-"""Stage 6: line the two solutions up quantity by quantity and give each a verdict."""
+"""Line the two solutions up quantity by quantity and say whether each pair of numbers agrees."""
 from __future__ import annotations
 
-from ..compile import CompiledGrowth
-from ..compile.texts import specifications
+from ..compile import CompiledPair, GrowthParameters
 from ..referee.adjudicate import Adjudication
-from ..spec import Method
-from .result import Estimate, Finding, QuantityRow, Reconciliation, Verdict
+from .result import Estimate, QuantityRow, Verdict
 from .tolerance import DEFAULT_TOLERANCE, Tolerance
 
-CAUTION = ("Agreement between the two frameworks shows that both programs computed the same estimates for the "
-           "same model: computational consistency. It does not show that the model is right for these data, "
-           "and it supports no causal claim. Decisions about people need substantive and design arguments "
-           "beyond this check.")
+
+def _mixed_key(key: str, available: dict) -> str:
+    """The mixed model's quantity for a key: its single residual variance stands for every wave's."""
+    return key if key in available or not key.startswith("var.residual.") else "var.residual"
 
 
-def _rows(compiled: CompiledGrowth, adj: Adjudication, tolerance: Tolerance) -> tuple[QuantityRow, ...]:
-    sem_values = compiled.to_quantities(adj.sem.params)
-    mixed_values = compiled.to_quantities(adj.mixed.params)
+def compare(pair: CompiledPair, sem: GrowthParameters, mixed: GrowthParameters, sem_se: dict, mixed_se: dict,
+            tolerance: Tolerance = DEFAULT_TOLERANCE) -> tuple[QuantityRow, ...]:
+    """One row per quantity of the wide form, with the long form's counterpart and a raw verdict."""
+    sem_values, mixed_values = pair.sem.to_quantities(sem), pair.mixed.to_quantities(mixed)
+    long_names = {c.key: c.long for c in pair.mixed.correspondence}
     rows = []
-    for corr in compiled.correspondence:
-        sem = Estimate(float(sem_values[corr.key]), float(adj.sem_se[corr.key]))
-        mixed = Estimate(float(mixed_values[corr.key]), float(adj.mixed_se[corr.key]))
-        agree = tolerance.agree(sem.estimate, mixed.estimate, sem.se, mixed.se)
-        rows.append(QuantityRow(key=corr.key, wide_name=corr.wide, long_name=corr.long, sem=sem, mixed=mixed,
-                                allowed_gap=tolerance.allowed_gap(sem.estimate, mixed.estimate, sem.se, mixed.se),
+    for corr in pair.sem.correspondence:
+        other = _mixed_key(corr.key, mixed_values)
+        if other not in mixed_values:
+            continue
+        a = Estimate(float(sem_values[corr.key]), float(sem_se[corr.key]))
+        b = Estimate(float(mixed_values[other]), float(mixed_se[other]))
+        agree = tolerance.agree(a.estimate, b.estimate, a.se, b.se)
+        rows.append(QuantityRow(key=corr.key, wide_name=corr.wide, long_name=long_names[other], sem=a, mixed=b,
+                                allowed_gap=tolerance.allowed_gap(a.estimate, b.estimate, a.se, b.se),
                                 verdict=Verdict.AGREE if agree else Verdict.UNEXPLAINED))
     return tuple(rows)
 
 
-def _findings(adj: Adjudication) -> tuple[Finding, ...]:
-    out = []
-    for fit in (adj.sem, adj.mixed):
-        out += [Finding("library-message", fit.library, m) for m in fit.messages]
-        out += [Finding("fit-note", fit.library, n) for n in fit.notes]
-    for refit in adj.refits:
-        result = "kept" if refit.kept else "not better; the first solution was kept"
-        out.append(Finding("stopped-short", refit.library,
-                           f"{refit.library} reported its fit as finished, but {refit.reason}; refitted from that "
-                           f"solution: criterion {refit.before:.6f} -> {refit.after:.6f} ({result})"))
-    return tuple(out)
-
-
-def _data_summary(compiled: CompiledGrowth, adj: Adjudication) -> dict:
-    shaped = compiled.shaped
-    desc = shaped.description
-    return {"persons_read": shaped.persons_read, "persons_used": shaped.n_persons,
-            "occasions_read": shaped.occasions_read, "occasions_used": len(shaped.outcome),
-            "missing": desc.estimation.missing.value, "method": desc.estimation.method.value,
-            "predictors": [{"key": p.key, "column": p.source, "level": p.level, "reference": p.reference}
-                           for p in shaped.predictors],
-            "seconds": {"sem": adj.sem.seconds, "mixed": adj.mixed.seconds}}
-
-
-def reconcile(compiled: CompiledGrowth, adj: Adjudication, tolerance: Tolerance = DEFAULT_TOLERANCE) -> Reconciliation:
-    """Build the reconciliation of two adjudicated fits."""
-    rows = _rows(compiled, adj, tolerance)
-    verdicts = {r.verdict for r in rows}
-    overall = (Verdict.UNEXPLAINED if Verdict.UNEXPLAINED in verdicts
-               else Verdict.EXPLAINED if Verdict.EXPLAINED in verdicts else Verdict.AGREE)
-    reml = compiled.shaped.description.estimation.method is Method.REML
-    return Reconciliation(
-        description=compiled.shaped.description.label, verdict=overall, quantities=rows,
-        timing=compiled.shaped.timing.to_dict(),
-        log_likelihood={k: float(v) for k, v in adj.log_likelihood.items()},
-        referee_checks=tuple({"library": c.library, "criterion": c.criterion, "library_value": float(c.library_value),
-                              "referee_value": float(c.referee_value),
-                              "relative_difference": float(c.relative_difference)} for c in adj.checks),
-        refits=tuple({"library": r.library, "reason": r.reason, "before": float(r.before), "after": float(r.after),
-                      "kept": bool(r.kept)} for r in adj.refits),
-        findings=_findings(adj), data=_data_summary(compiled, adj), tolerance=tolerance.describe(),
-        specifications=specifications(compiled, reml), caution=CAUTION)
+def compare_adjudicated(pair: CompiledPair, adj: Adjudication, first: bool = False,
+                        tolerance: Tolerance = DEFAULT_TOLERANCE) -> tuple[QuantityRow, ...]:
+    """Rows for the final solutions, or (`first=True`) for the libraries' first answers."""
+    sem, mixed = (adj.first_sem, adj.first_mixed) if first else (adj.sem, adj.mixed)
+    return compare(pair, sem.params, mixed.params, adj.sem_se, adj.mixed_se, tolerance)

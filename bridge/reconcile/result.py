@@ -31,10 +31,25 @@ class QuantityRow:
     mixed: Estimate
     allowed_gap: float
     verdict: Verdict
+    causes: tuple[str, ...] = ()
 
     @property
     def difference(self) -> float:
         return self.sem.estimate - self.mixed.estimate
+
+
+@dataclass(frozen=True)
+class Explanation:
+    """One cause of difference, with the refit that proves it."""
+
+    cause: str
+    title: str
+    quantities: tuple[Key, ...]
+    gap_before: dict[Key, float]
+    gap_after: dict[Key, float]
+    evidence: str
+    why: str
+    details: dict
 
 
 @dataclass(frozen=True)
@@ -58,6 +73,7 @@ class Reconciliation:
     referee_checks: tuple[dict, ...]
     refits: tuple[dict, ...]
     findings: tuple[Finding, ...]
+    explanations: tuple[Explanation, ...]
     data: dict
     tolerance: str
     specifications: dict[str, str]

@@ -5,7 +5,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..compile import CompiledGrowth, GrowthParameters, Key, LongDesign
+from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key
 from ..fit import FitOutcome, fit_mixed, fit_sem
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
@@ -44,6 +44,8 @@ class Adjudication:
 
     sem: FitOutcome
     mixed: FitOutcome
+    first_sem: FitOutcome       # as the libraries first returned them, before any refit the referee ordered
+    first_mixed: FitOutcome
     refits: tuple[Refit, ...]
     checks: tuple[LikelihoodCheck, ...]
     log_likelihood: dict[str, float]
@@ -56,19 +58,21 @@ def _tolerance(value: float) -> float:
 
 
 class _Judge:
-    def __init__(self, compiled: CompiledGrowth, reml: bool):
-        self.compiled, self.reml = compiled, reml
-        self.sem_referee = Referee(compiled.wave_design)
-        self.exact_referee = Referee(compiled.exact_design)
+    """Scores any solution under each library's own model, on the user's scale."""
+
+    def __init__(self, pair: CompiledPair):
+        self.pair, self.reml = pair, pair.plan.reml
+        self.sem_referee = Referee(pair.sem.wave_design)
+        self.mixed_referee = Referee(pair.mixed.mixed_design)
         self.refits: list[Refit] = []
 
     def sem_score(self, params: GrowthParameters) -> float:
-        return self.sem_referee.log_likelihood(params) + self.compiled.scaling.log_jacobian(self.sem_referee.n_obs)
+        return self.sem_referee.log_likelihood(params) + self.pair.sem.scaling.log_jacobian(self.sem_referee.n_obs)
 
     def mixed_score(self, params: GrowthParameters) -> float:
-        shift = (self.compiled.reml_log_jacobian() if self.reml
-                 else self.compiled.scaling.log_jacobian(self.exact_referee.n_obs))
-        return self.exact_referee.criterion(params, self.reml) + shift
+        mixed = self.pair.mixed
+        shift = mixed.reml_log_jacobian() if self.reml else mixed.scaling.log_jacobian(self.mixed_referee.n_obs)
+        return self.mixed_referee.criterion(params, self.reml) + shift
 
     def better(self, library: str, current: FitOutcome, candidate: GrowthParameters, reason: str, refit) -> FitOutcome:
         """Refit `library` from `candidate` when the candidate scores higher under its own criterion."""
@@ -82,6 +86,10 @@ class _Judge:
         self.refits.append(Refit(library, reason.format(gap=rival - before), before, after, kept))
         return new if kept else current
 
+    def exact_log_likelihood(self, compiled: CompiledGrowth, params: GrowthParameters) -> float:
+        referee = Referee(compiled.exact_design)
+        return referee.log_likelihood(params) + compiled.scaling.log_jacobian(referee.n_obs)
+
 
 def _boundary_candidate(compiled: CompiledGrowth, mixed: FitOutcome, reml: bool) -> FitOutcome | None:
     eig = np.linalg.eigvalsh(mixed.params.cov)
@@ -90,32 +98,40 @@ def _boundary_candidate(compiled: CompiledGrowth, mixed: FitOutcome, reml: bool)
     return fit_mixed(compiled, reml, random_terms=1)
 
 
-def adjudicate(compiled: CompiledGrowth, sem: FitOutcome, mixed: FitOutcome, reml: bool) -> Adjudication:
-    """Compare both solutions under each library's own model; refit the one that stopped short."""
-    judge = _Judge(compiled, reml)
-    boundary = _boundary_candidate(compiled, mixed, reml)
+def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudication:
+    """Compare both solutions under each library's own model; refit the one that stopped short.
+
+    A solution can be scored under the other library's model only when both forms
+    use the same occasions and time coding (and, for the SEM's solution, the same
+    residual structure); otherwise each library is checked against the referee alone.
+    """
+    judge, reml = _Judge(pair), pair.plan.reml
+    first_sem, first_mixed = sem, mixed
+    boundary = _boundary_candidate(pair.mixed, mixed, reml)
     if boundary is not None:
         mixed = judge.better("statsmodels", mixed, boundary.params,
                              "the boundary solution (person-effect covariance of rank 1) scores {gap:.4g} higher",
-                             lambda p: fit_mixed(compiled, reml, start=p))
-    sem = judge.better("semopy", sem, mixed.params,
-                       "the statsmodels solution scores {gap:.4g} higher under the wide-form likelihood",
-                       lambda p: fit_sem(compiled, start=p))
-    if compiled.equal_residuals:
+                             lambda p: fit_mixed(pair.mixed, reml, start=p))
+    if pair.comparable:
+        sem = judge.better("semopy", sem, mixed.params,
+                           "the statsmodels solution scores {gap:.4g} higher under the wide-form likelihood",
+                           lambda p: fit_sem(pair.sem, start=p))
+    if pair.comparable and pair.sem.equal_residuals:
         mixed = judge.better("statsmodels", mixed, sem.params,
                              "the semopy solution scores {gap:.4g} higher under the long-form criterion",
-                             lambda p: fit_mixed(compiled, reml, start=p))
+                             lambda p: fit_mixed(pair.mixed, reml, start=p))
     checks = (LikelihoodCheck("semopy", "ml", sem.own_log_likelihood, judge.sem_score(sem.params)),
               LikelihoodCheck("statsmodels", "reml" if reml else "ml", mixed.own_log_likelihood,
                               judge.mixed_score(mixed.params)))
-    exact_shift = compiled.scaling.log_jacobian(judge.exact_referee.n_obs)
+    sem_home = pair.mixed if pair.comparable else pair.sem
     log_likelihood = {"sem": sem.own_log_likelihood, "mixed": mixed.own_log_likelihood,
-                      "referee_at_sem": judge.exact_referee.log_likelihood(sem.params) + exact_shift,
-                      "referee_at_mixed": judge.exact_referee.log_likelihood(mixed.params) + exact_shift}
-    return Adjudication(sem=sem, mixed=mixed, refits=tuple(judge.refits), checks=checks,
-                        log_likelihood=log_likelihood,
-                        sem_se=standard_errors(compiled, judge.sem_referee, sem.params, compiled.equal_residuals, False),
-                        mixed_se=standard_errors(compiled, judge.exact_referee, mixed.params, True, reml))
+                      "referee_at_sem": judge.exact_log_likelihood(sem_home, sem.params),
+                      "referee_at_mixed": judge.exact_log_likelihood(pair.mixed, mixed.params)}
+    return Adjudication(sem=sem, mixed=mixed, first_sem=first_sem, first_mixed=first_mixed,
+                        refits=tuple(judge.refits), checks=checks, log_likelihood=log_likelihood,
+                        sem_se=standard_errors(pair.sem, judge.sem_referee, sem.params, pair.sem.equal_residuals,
+                                               False),
+                        mixed_se=standard_errors(pair.mixed, judge.mixed_referee, mixed.params, True, reml))
 
 
 def variance_keys(compiled: CompiledGrowth, equal_residuals: bool) -> list[list[Key]]:

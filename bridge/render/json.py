@@ -13,6 +13,19 @@ def _number(value: float) -> float | None:
     return float(value) if value is not None and math.isfinite(value) else None
 
 
+def _plain(value):
+    """Details as JSON-ready data: numbers made finite-or-null, containers walked."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, bool) or value is None or isinstance(value, str):
+        return value
+    if isinstance(value, (int, float)) or hasattr(value, "__float__"):
+        return _number(float(value))
+    return str(value)
+
+
 def to_dict(rec: Reconciliation) -> dict:
     """The reconciliation as plain JSON-ready data (non-finite numbers become null)."""
     return {
@@ -28,8 +41,12 @@ def to_dict(rec: Reconciliation) -> dict:
                         "sem": {"estimate": _number(r.sem.estimate), "se": _number(r.sem.se)},
                         "mixed": {"estimate": _number(r.mixed.estimate), "se": _number(r.mixed.se)},
                         "difference": _number(r.difference), "allowed_gap": _number(r.allowed_gap),
-                        "verdict": r.verdict.value} for r in rec.quantities],
-        "explanations": [],
+                        "verdict": r.verdict.value, "causes": list(r.causes)} for r in rec.quantities],
+        "explanations": [{"cause": e.cause, "title": e.title, "quantities": list(e.quantities),
+                          "gap_before": {k: _number(v) for k, v in e.gap_before.items()},
+                          "gap_after": {k: _number(v) for k, v in e.gap_after.items()},
+                          "evidence": e.evidence, "why": e.why, "details": _plain(e.details)}
+                         for e in rec.explanations],
         "findings": [{"code": f.code, "library": f.library, "message": f.message} for f in rec.findings],
         "tolerance": rec.tolerance,
         "caution": rec.caution,

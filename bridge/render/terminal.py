@@ -26,7 +26,7 @@ def quantity_table(rec: Reconciliation) -> Table:
         table.add_column(heading, justify="right", no_wrap=True)
     table.add_column("verdict", no_wrap=True)
     for row in rec.quantities:
-        table.add_row(row.key, _fmt(row.sem.estimate), _fmt(row.sem.se), _fmt(row.mixed.estimate),
+        table.add_row(Text(row.key), _fmt(row.sem.estimate), _fmt(row.sem.se), _fmt(row.mixed.estimate),
                       _fmt(row.mixed.se), _fmt(row.difference), Text(row.verdict.value, style=_STYLE[row.verdict]))
     return table
 
@@ -55,6 +55,12 @@ def render(rec: Reconciliation, console: Console) -> None:
     """Print the reconciliation: summary, table, findings, verdict, caution."""
     console.print(Group(*(Text(line) for line in _summary_lines(rec))))
     console.print(quantity_table(rec))
+    if rec.explanations:
+        console.print(Text("Why the numbers differ", style="bold"))
+    for e in rec.explanations:
+        console.print(Text(f"- {e.title} [{e.cause}] affects {', '.join(e.quantities)}.", style="bold"))
+        console.print(Text(f"  {e.why}"))
+        console.print(Text(f"  Evidence: {e.evidence}"))
     for finding in rec.findings:
         console.print(Text(f"Note ({finding.library or 'sembridge'}): {finding.message}"))
     console.print(Text(f"Tolerance: {rec.tolerance}.", style="dim"))

@@ -1,0 +1,68 @@
+"""Assemble the reconciliation: the one object every renderer reads."""
+from __future__ import annotations
+
+from ..compile.texts import pair_specifications
+from ..data import ShapedData
+from .evaluate import Evaluation, Progress, quiet
+from .explain import explain
+from .result import Finding, Reconciliation, Verdict
+from .tolerance import DEFAULT_TOLERANCE
+
+CAUTION = ("Agreement between the two frameworks shows that both programs computed the same estimates for the "
+           "same model: computational consistency. It does not show that the model is right for these data, "
+           "and it supports no causal claim. Decisions about people need substantive and design arguments "
+           "beyond this check.")
+
+
+def _findings(base: Evaluation) -> tuple[Finding, ...]:
+    adj, out = base.adjudication, []
+    for fit in (adj.first_sem, adj.first_mixed, adj.sem, adj.mixed):
+        out += [Finding("library-message", fit.library, m) for m in fit.messages]
+        out += [Finding("fit-note", fit.library, n) for n in fit.notes]
+    for refit in adj.refits:
+        result = "kept" if refit.kept else "not better; the first solution was kept"
+        out.append(Finding("stopped-short", refit.library,
+                           f"{refit.library} reported its fit as finished, but {refit.reason}; refitted from that "
+                           f"solution: criterion {refit.before:.6f} -> {refit.after:.6f} ({result})"))
+    return tuple(dict.fromkeys(out))
+
+
+def _form_data(compiled) -> dict:
+    return {"persons": compiled.shaped.n_persons, "occasions": len(compiled.shaped.outcome),
+            "missing": compiled.coding.missing.value, "time_origin": compiled.coding.origin,
+            "time_scale": compiled.coding.scale}
+
+
+def _data_summary(shaped: ShapedData, base: Evaluation) -> dict:
+    adj = base.adjudication
+    return {"persons_read": shaped.persons_read, "persons_used": base.pair.mixed.shaped.n_persons,
+            "occasions_read": shaped.occasions_read, "occasions_used": len(base.pair.mixed.shaped.outcome),
+            "missing": base.plan.mixed.missing.value, "method": base.plan.method.value,
+            "forms": {"sem": _form_data(base.pair.sem), "mixed": _form_data(base.pair.mixed)},
+            "predictors": [{"key": p.key, "column": p.source, "level": p.level, "reference": p.reference}
+                           for p in shaped.predictors],
+            "seconds": {"sem": adj.sem.seconds, "mixed": adj.mixed.seconds}}
+
+
+def _overall(rows) -> Verdict:
+    verdicts = {r.verdict for r in rows}
+    if Verdict.UNEXPLAINED in verdicts:
+        return Verdict.UNEXPLAINED
+    return Verdict.EXPLAINED if Verdict.EXPLAINED in verdicts else Verdict.AGREE
+
+
+def reconcile(shaped: ShapedData, base: Evaluation, progress: Progress = quiet) -> Reconciliation:
+    """Explain the base evaluation's differences and assemble the reconciliation."""
+    explained = explain(shaped, base, progress)
+    adj = base.adjudication
+    texts = pair_specifications(base.pair)
+    return Reconciliation(
+        description=shaped.description.label, verdict=_overall(explained.rows), quantities=explained.rows,
+        timing=shaped.timing.to_dict(), log_likelihood={k: float(v) for k, v in adj.log_likelihood.items()},
+        referee_checks=tuple({"library": c.library, "criterion": c.criterion, "library_value": float(c.library_value),
+                              "referee_value": float(c.referee_value),
+                              "relative_difference": float(c.relative_difference)} for c in adj.checks),
+        refits=tuple({"library": r.library, "reason": r.reason, "before": float(r.before), "after": float(r.after),
+                      "kept": bool(r.kept)} for r in adj.refits),
+        findings=_findings(base), explanations=explained.explanations, data=_data_summary(shaped, base),
+        tolerance=DEFAULT_TOLERANCE.describe(), specifications=texts, caution=CAUTION)

@@ -1,0 +1,57 @@
+"""The catalogue of causes: why two fits of one model can give different numbers.
+
+Each cause has a stable key (used in the JSON), a short title, and a plain
+explanation for an applied researcher. Detection and the harmonised refit that
+proves a cause live in `explain.py`; this module is only the words.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Cause:
+    key: str
+    title: str
+    why: str
+    changes_verdict: bool = True  # False: reported, but never turns a difference into an explained one
+
+
+CATALOGUE: dict[str, Cause] = {c.key: c for c in (
+    Cause("estimation-method", "REML in the mixed model, ML in the SEM",
+          "Restricted maximum likelihood (REML) adjusts the variance components for the fixed effects "
+          "estimated from the same data, so its variances are larger than the maximum-likelihood (ML) ones, "
+          "most visibly in small samples. The SEM is fitted by ML. Fixed effects are unaffected in balanced "
+          "designs."),
+    Cause("residual-structure", "a residual variance per wave in the SEM, one in the mixed model",
+          "The SEM estimated a separate residual variance at every wave; the mixed model has one residual "
+          "variance for all occasions. The extra freedom shifts the growth-factor variances as well."),
+    Cause("missing-data", "different handling of missing occasions",
+          "One form used only persons observed at every wave (complete cases); the other used every "
+          "available occasion. These are different data sets, so the estimates differ. Under missing at "
+          "random, full-information ML in the SEM and ML on all rows of the mixed model maximise the same "
+          "likelihood."),
+    Cause("time-binning", "times that vary by person, rounded onto waves for the wide form",
+          "Each person was measured at their own times. The wide form has one column per wave, so every "
+          "occasion was moved to its nearest wave; the mixed model used the real times. The exact-time "
+          "mixed model is the one to trust: the wide form would need person-specific loadings to use the "
+          "real times."),
+    Cause("optimizer", "a library stopped short of the maximum",
+          "A library reported success at a point where the referee's log-likelihood is lower than at the "
+          "other library's solution. sembridge refitted it from the better solution; the numbers shown are "
+          "from the refit."),
+    Cause("boundary", "a variance at or near its boundary",
+          "A random-effect variance is at or near zero, or the factor covariance is not positive "
+          "semidefinite. The mixed model keeps the person-effect covariance positive semidefinite; semopy "
+          "only keeps variances non-negative. Near the boundary the likelihood is flat, so two optimisers "
+          "can stop at different points with almost the same fit."),
+    Cause("time-coding", "different time origin or units",
+          "The two forms code time differently (another zero point or another unit). The intercept then "
+          "refers to another moment and the slope to another unit, so the numbers differ while the fitted "
+          "trajectories are the same."),
+    Cause("standard-errors", "equal estimates, different standard errors",
+          "The estimates agree but the libraries' own standard errors differ. semopy's default uses the "
+          "expected information, which ignores missing occasions; statsmodels reports variance-component "
+          "standard errors on another scale. sembridge shows observed-information standard errors from "
+          "its referee for both forms.", changes_verdict=False),
+)}
