@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import sys
 import time
+import traceback
 from contextlib import contextmanager
 from pathlib import Path
 
@@ -116,6 +117,9 @@ def main() -> None:
     """Entry point: unexpected failures also end in one line (exit 1) unless --debug is given."""
     try:
         app()
+    except SembridgeError:  # reached only with --debug: show the traceback, keep the bad-input exit code
+        traceback.print_exc()
+        sys.exit(2)
     except Exception as exc:  # a bug in sembridge or a library, not the user's input
         if "--debug" in sys.argv:
             raise

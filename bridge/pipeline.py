@@ -1,13 +1,21 @@
-"""The pipeline, stage by stage: description -> shaped data -> compiled -> fits -> referee -> reconciliation."""
+"""The pipeline, stage by stage: description -> shaped data -> compiled -> fits -> referee -> reconciliation.
+
+The fitting stages are imported when first needed, so reading and checking a
+description stays quick (bad input is reported before semopy and statsmodels load).
+"""
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from .compile import CompiledPair, Plan, compile_pair
 from .data import ShapedData, shape_data
-from .reconcile import Evaluation, Reconciliation, evaluate, reconcile
-from .reconcile.evaluate import Progress, quiet
+from .progress import Progress, quiet
 from .spec import Description, load
+
+if TYPE_CHECKING:
+    from .reconcile import Reconciliation
+    from .reconcile.evaluation import Evaluation
 
 
 def _description(description: Description | str | Path) -> Description:
@@ -25,15 +33,20 @@ def compile_description(description: Description | str | Path) -> CompiledPair:
     return compile_pair(shaped, Plan.from_description(shaped.description))
 
 
-def evaluate_description(description: Description | str | Path, progress: Progress = quiet) -> Evaluation:
+def evaluate_description(description: Description | str | Path, progress: Progress = quiet) -> "Evaluation":
     """Fit both forms as described and let the referee adjudicate (no explanations)."""
+    from .reconcile.evaluation import evaluate
+
     shaped = shape(description)
     return evaluate(shaped, Plan.from_description(shaped.description), progress)
 
 
-def run(description: Description | str | Path, progress: Progress = quiet) -> Reconciliation:
+def run(description: Description | str | Path, progress: Progress = quiet) -> "Reconciliation":
     """The main job: one description in, one reconciliation with explanations out."""
     with progress("reading the description and data"):
         shaped = shape(description)
+    from .reconcile.build import reconcile
+    from .reconcile.evaluation import evaluate
+
     base = evaluate(shaped, Plan.from_description(shaped.description), progress)
     return reconcile(shaped, base, progress)

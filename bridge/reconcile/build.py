@@ -3,7 +3,8 @@ from __future__ import annotations
 
 from ..compile.texts import pair_specifications
 from ..data import ShapedData
-from .evaluate import Evaluation, Progress, quiet
+from ..progress import Progress, quiet
+from .evaluation import Evaluation
 from .explain import explain
 from .result import Finding, Reconciliation, Verdict
 from .tolerance import DEFAULT_TOLERANCE

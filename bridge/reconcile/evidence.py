@@ -10,7 +10,7 @@ from ..compile import compile_growth
 from ..data import ShapedData
 from ..fit import fit_sem
 from ..spec import Residuals
-from .evaluate import Evaluation
+from .evaluation import Evaluation
 from .harmonise import boundary_terms
 from .result import QuantityRow, Verdict
 

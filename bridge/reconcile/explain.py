@@ -10,7 +10,8 @@ from dataclasses import dataclass, replace
 
 from ..data import ShapedData
 from .compare import compare_adjudicated
-from .evaluate import Evaluation, Progress, evaluate, quiet
+from ..progress import Progress, quiet
+from .evaluation import Evaluation, evaluate
 from .evidence import EVIDENCE, Context, optimizer_evidence, standard_error_evidence
 from .harmonise import HARMONISERS, without
 from .result import Explanation, QuantityRow, Verdict

@@ -9,7 +9,7 @@ import numpy as np
 from ..compile import Plan, TimeSource
 from ..data import Design
 from ..spec import Method, Missing, Residuals, Term
-from .evaluate import Evaluation
+from .evaluation import Evaluation
 
 BOUNDARY_RELATIVE = 1e-3  # a variance below this share of the largest one (internal scale) is at its boundary
 

@@ -1,23 +1,15 @@
 """Fit one plan end to end: compile both forms, fit them, let the referee adjudicate, compare."""
 from __future__ import annotations
 
-from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass
-from typing import Callable
 
 from ..compile import CompiledPair, Plan, compile_pair
 from ..data import ShapedData
 from ..fit import fit_mixed, fit_sem
+from ..progress import Progress, quiet
 from ..referee.adjudicate import Adjudication, adjudicate
 from .compare import compare_adjudicated
 from .result import QuantityRow
-
-Progress = Callable[[str], AbstractContextManager]
-
-
-def quiet(_: str) -> AbstractContextManager:
-    return nullcontext()
-
 
 @dataclass(frozen=True)
 class Evaluation:
