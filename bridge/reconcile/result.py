@@ -2,18 +2,16 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from enum import Enum
 
 from ..compile import Key
+from ..spec.vocabulary import Words
 
 
-class Verdict(str, Enum):
+class Verdict(Words):
     AGREE = "agree"
     EXPLAINED = "explained"
     UNEXPLAINED = "unexplained"
 
-    def __str__(self) -> str:
-        return self.value
 
 
 @dataclass(frozen=True)

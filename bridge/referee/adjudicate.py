@@ -5,7 +5,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key
+from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key, LongDesign
 from ..fit import FitOutcome, fit_mixed, fit_sem
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
@@ -62,9 +62,16 @@ class _Judge:
 
     def __init__(self, pair: CompiledPair):
         self.pair, self.reml = pair, pair.plan.reml
-        self.sem_referee = Referee(pair.sem.wave_design)
-        self.mixed_referee = Referee(pair.mixed.mixed_design)
+        self._referees: dict[int, Referee] = {}
+        self.sem_referee = self.referee(pair.sem.wave_design)
+        self.mixed_referee = self.referee(pair.mixed.mixed_design)
         self.refits: list[Refit] = []
+
+    def referee(self, design: LongDesign) -> Referee:
+        """One referee per design (building one groups every person, so it is done once)."""
+        if id(design) not in self._referees:
+            self._referees[id(design)] = Referee(design)
+        return self._referees[id(design)]
 
     def sem_score(self, params: GrowthParameters) -> float:
         return self.sem_referee.log_likelihood(params) + self.pair.sem.scaling.log_jacobian(self.sem_referee.n_obs)
@@ -87,7 +94,7 @@ class _Judge:
         return new if kept else current
 
     def exact_log_likelihood(self, compiled: CompiledGrowth, params: GrowthParameters) -> float:
-        referee = Referee(compiled.exact_design)
+        referee = self.referee(compiled.exact_design)
         return referee.log_likelihood(params) + compiled.scaling.log_jacobian(referee.n_obs)
 
 

@@ -7,7 +7,9 @@ from __future__ import annotations
 from enum import Enum
 
 
-class _Words(str, Enum):
+class Words(str, Enum):
+    """An enum whose values are the words users and the JSON see."""
+
     @classmethod
     def words(cls) -> tuple[str, ...]:
         return tuple(member.value for member in cls)
@@ -16,21 +18,21 @@ class _Words(str, Enum):
         return self.value
 
 
-class Layout(_Words):
+class Layout(Words):
     LONG = "long"
     WIDE = "wide"
 
 
-class Kind(_Words):
+class Kind(Words):
     GROWTH = "growth"
 
 
-class Shape(_Words):
+class Shape(Words):
     LINEAR = "linear"
     QUADRATIC = "quadratic"
 
 
-class Term(_Words):
+class Term(Words):
     """A growth term: the power of time it multiplies."""
 
     INTERCEPT = "intercept"
@@ -42,17 +44,17 @@ class Term(_Words):
         return list(Term).index(self)
 
 
-class Residuals(_Words):
+class Residuals(Words):
     EQUAL = "equal"
     PER_WAVE = "per-wave"
 
 
-class Method(_Words):
+class Method(Words):
     ML = "ml"
     REML = "reml"
 
 
-class Missing(_Words):
+class Missing(Words):
     FULL_INFORMATION = "full-information"
     COMPLETE_CASES = "complete-cases"
 
