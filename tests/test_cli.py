@@ -235,7 +235,7 @@ def test_compile_prints_both_specifications_and_every_key(setup):
     assert run.returncode == 0, run.stderr
     assert "=~" in run.stdout
     assert "MixedLM" in run.stdout
-    correspondence = {c.key for c in bridge.compile_description(setup.balanced).correspondence}
+    correspondence = {c.key for c in bridge.compile_description(setup.balanced).sem.correspondence}
     assert BALANCED_KEYS <= correspondence
     for key in sorted(correspondence):
         assert key in run.stdout, f"{key} missing from compile output"
@@ -245,7 +245,7 @@ def test_compile_keys_match_the_reconciled_quantities(setup):
     setup.runs["compile"].result()
     setup.runs["json-file"].result()
     reconciled = {q["key"] for q in json.loads((setup.out / "balanced.json").read_text())["quantities"]}
-    correspondence = {c.key for c in bridge.compile_description(setup.balanced).correspondence}
+    correspondence = {c.key for c in bridge.compile_description(setup.balanced).sem.correspondence}
     assert reconciled == correspondence
 
 
@@ -255,16 +255,19 @@ def test_compile_does_not_fit(setup, monkeypatch):
     from statsmodels.regression.mixed_linear_model import MixedLM
     from typer.testing import CliRunner
 
-    from bridge import cli, pipeline
+    import bridge.fit.mixed
+    import bridge.fit.sem
+    import bridge.reconcile.evaluation
+    from bridge import cli
 
     def refuse(*_args, **_kwargs):
         raise AssertionError("compile must not fit anything")
 
     monkeypatch.setattr(semopy.Model, "fit", refuse)
     monkeypatch.setattr(MixedLM, "fit", refuse)
-    monkeypatch.setattr(pipeline, "fit_and_adjudicate", refuse)
-    monkeypatch.setattr(pipeline, "fit_sem", refuse)
-    monkeypatch.setattr(pipeline, "fit_mixed", refuse)
+    monkeypatch.setattr(bridge.reconcile.evaluation, "evaluate", refuse)
+    monkeypatch.setattr(bridge.fit.sem, "fit_sem", refuse)
+    monkeypatch.setattr(bridge.fit.mixed, "fit_mixed", refuse)
     result = CliRunner().invoke(cli.app, ["compile", str(setup.balanced)])
     assert result.exception is None, repr(result.exception)
     assert result.exit_code == 0, result.output

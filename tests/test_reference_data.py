@@ -190,7 +190,9 @@ def test_bodyweight_ml_both_forms_agree_after_any_refit(case):
     # referee refitted it from the long-form solution; whatever happens, the run must end in agreement
     # and any refit the referee kept must have improved the criterion.
     rec = bodyweight(case, "ml")
-    assert rec.verdict.value == "agree"
+    # a refit that closed a gap the libraries' first answers left is reported as explained by `optimizer`
+    assert rec.verdict.value in ("agree", "explained")
+    assert all(row.causes in ((), ("optimizer",)) for row in rec.quantities)
     assert all(refit["kept"] and refit["after"] > refit["before"] for refit in rec.refits)
     assert rec.log_likelihood["sem"] == pytest.approx(rec.log_likelihood["mixed"], rel=1e-7)
     assert rec.log_likelihood["referee_at_sem"] == pytest.approx(rec.log_likelihood["referee_at_mixed"], rel=1e-7)

@@ -53,6 +53,11 @@ class Adjudication:
     mixed_se: dict[Key, float]
 
 
+def _positive_semidefinite(cov) -> bool:
+    eig = np.linalg.eigvalsh(cov)
+    return bool(eig.min() >= -1e-10 * max(float(np.abs(eig).max()), 1e-12))
+
+
 def _tolerance(value: float) -> float:
     return max(1e-4, 1e-7 * abs(value))
 
@@ -84,12 +89,14 @@ class _Judge:
     def better(self, library: str, current: FitOutcome, candidate: GrowthParameters, reason: str, refit) -> FitOutcome:
         """Refit `library` from `candidate` when the candidate scores higher under its own criterion."""
         score = self.sem_score if library == "semopy" else self.mixed_score
+        if library == "statsmodels" and not _positive_semidefinite(candidate.cov):
+            return current  # outside the mixed model's parameter space: a boundary matter, not a short stop
         before, rival = score(current.params), score(candidate)
         if not rival > before + _tolerance(before):
             return current
         new = refit(candidate)
         after = score(new.params)
-        kept = bool(after > before)
+        kept = bool(after > before + 1e-9 * max(1.0, abs(before)))
         self.refits.append(Refit(library, reason.format(gap=rival - before), before, after, kept))
         return new if kept else current
 
