@@ -1,0 +1,4 @@
+"""`python -m bridge.cli` runs the command line."""
+from . import main
+
+main()
