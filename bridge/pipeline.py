@@ -45,6 +45,11 @@ def run(description: Description | str | Path, progress: Progress = quiet) -> "R
     """The main job: one description in, one reconciliation with explanations out."""
     with progress("reading the description and data"):
         shaped = shape(description)
+    return run_shaped(shaped, progress)
+
+
+def run_shaped(shaped: ShapedData, progress: Progress = quiet) -> "Reconciliation":
+    """The main job on data already shaped (for example simulated in memory with `data.shape_frame`)."""
     from .reconcile.build import reconcile
     from .reconcile.evaluation import evaluate
 

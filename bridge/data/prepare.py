@@ -140,8 +140,12 @@ def _check_invariant_predictors(long: pd.DataFrame, predictors: tuple[str, ...],
 
 def shape_data(desc: Description) -> ShapedData:
     """Read, check and shape the description's data file; raise DataError on the first problem."""
+    return shape_frame(desc, read_table(desc.data.path))
+
+
+def shape_frame(desc: Description, frame: pd.DataFrame) -> ShapedData:
+    """Check and shape an in-memory frame laid out as the description says (the file is not read)."""
     label = desc.data.path.name
-    frame = read_table(desc.data.path)
     long = _long_frame(desc, frame.copy(), label)
     if long["_person"].isna().any():
         raise DataError(f"{label}: person column '{desc.data.person}' has missing values")

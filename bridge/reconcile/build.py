@@ -66,4 +66,4 @@ def reconcile(shaped: ShapedData, base: Evaluation, progress: Progress = quiet) 
         refits=tuple({"library": r.library, "reason": r.reason, "before": float(r.before), "after": float(r.after),
                       "kept": bool(r.kept)} for r in adj.refits),
         findings=_findings(base), explanations=explained.explanations, data=_data_summary(shaped, base),
-        tolerance=DEFAULT_TOLERANCE.describe(), specifications=texts, caution=CAUTION)
+        tolerance=DEFAULT_TOLERANCE.describe(), specifications=texts, caution=CAUTION, pair=base.pair)

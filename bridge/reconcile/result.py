@@ -1,7 +1,8 @@
 """The reconciliation: the one object every renderer reads."""
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from typing import Any
 
 from ..compile import Key
 from ..spec.vocabulary import Words
@@ -76,6 +77,8 @@ class Reconciliation:
     tolerance: str
     specifications: dict[str, str]
     caution: str
+    pair: Any = field(default=None, compare=False, repr=False)  # the CompiledPair: model structure and data
+
 
     @property
     def exit_code(self) -> int:
