@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import time
 import warnings
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -17,15 +18,50 @@ MAX_FITS = 30
 RELATIVE_GAIN = 1e-10
 
 
-def _model(compiled: CompiledGrowth) -> semopy.ModelMeans:
-    try:
-        return semopy.ModelMeans(compiled.sem_text)
-    except Exception as exc:  # semopy raises bare exceptions from its parser
-        raise FitError(f"semopy rejected the generated wide-form model ({exc})") from exc
+@dataclass(frozen=True)
+class SemopyRun:
+    """One semopy fit, refitted from its own point until the objective stopped improving."""
+
+    values: dict[str, float]   # every free parameter by label
+    objective: float           # semopy's objective: -2 log L - (observed data points) x log(2 pi)
+    success: bool
+    fits: int
+    messages: tuple[str, ...]
 
 
 def _active_names(model: semopy.ModelMeans) -> list[str]:
     return [name for name, p in model.parameters.items() if p.active]
+
+
+def run_semopy(text: str, frame: pd.DataFrame, start: dict[str, float] | None = None) -> SemopyRun:
+    """Fit a semopy model text by full-information ML; refit until the objective stops improving.
+
+    `start` gives starting values by label (a warm start from another solution).
+    """
+    try:
+        model = semopy.ModelMeans(text)
+    except Exception as exc:  # semopy raises bare exceptions from its parser
+        raise FitError(f"semopy rejected the generated wide-form model ({exc})") from exc
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        if start is not None:
+            model.load(frame)
+            model.param_vals = np.array([start[name] for name in _active_names(model)])
+        last, fits, result = np.inf, 0, None
+        while fits < MAX_FITS:
+            result = model.fit(frame, obj="ML", clean_slate=False)
+            fits += 1
+            if not np.isfinite(result.fun) or last - result.fun <= RELATIVE_GAIN * max(1.0, abs(result.fun)):
+                break
+            last = result.fun
+    return SemopyRun(values=dict(zip(_active_names(model), map(float, model.param_vals))),
+                     objective=float(result.fun), success=bool(result.success), fits=fits,
+                     messages=tuple(dict.fromkeys(str(w.message).splitlines()[0] for w in caught)))
+
+
+def semopy_log_likelihood(run: SemopyRun, n_observed: int) -> float:
+    """The log-likelihood behind semopy's full-information objective (internal scale)."""
+    return -0.5 * (run.objective + n_observed * LOG_2PI)
 
 
 def _frame(compiled: CompiledGrowth, factor: float) -> pd.DataFrame:
@@ -39,26 +75,6 @@ def _rescale(params: GrowthParameters, factor: float) -> GrowthParameters:
     return GrowthParameters(params.fixed * factor, params.cov * factor ** 2, params.residual * factor ** 2)
 
 
-def _run(compiled: CompiledGrowth, factor: float, start: GrowthParameters | None):
-    model, frame = _model(compiled), _frame(compiled, factor)
-    messages: list[str] = []
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        if start is not None:
-            model.load(frame)
-            values = compiled.sem_values(_rescale(start, factor))
-            model.param_vals = np.array([values[name] for name in _active_names(model)])
-        last, fits, result = np.inf, 0, None
-        while fits < MAX_FITS:
-            result = model.fit(frame, obj="ML", clean_slate=False)
-            fits += 1
-            if not np.isfinite(result.fun) or last - result.fun <= RELATIVE_GAIN * max(1.0, abs(result.fun)):
-                break
-            last = result.fun
-    messages += [str(w.message).splitlines()[0] for w in caught]
-    return model, result, fits, messages
-
-
 def fit_sem(compiled: CompiledGrowth, start: GrowthParameters | None = None) -> FitOutcome:
     """Fit the wide form; refit from its own last point until the objective stops improving.
 
@@ -68,19 +84,19 @@ def fit_sem(compiled: CompiledGrowth, start: GrowthParameters | None = None) -> 
     began = time.perf_counter()
     factor, notes = 1.0, []
     for _ in range(4):
-        model, result, fits, messages = _run(compiled, factor, start)
-        if np.isfinite(result.fun):
+        start_values = None if start is None else compiled.sem_values(_rescale(start, factor))
+        run = run_semopy(compiled.sem_text, _frame(compiled, factor), start_values)
+        if np.isfinite(run.objective):
             break
         notes.append(f"objective was not finite on the outcome scale x{factor:g}; refitted with the outcome x10")
         factor *= 10.0
     else:
         raise FitError("semopy's objective stayed non-finite after rescaling the outcome")
-    values = dict(zip(_active_names(model), model.param_vals))
-    params = _rescale(compiled.from_sem_values(values), 1.0 / factor)
+    params = _rescale(compiled.from_sem_values(run.values), 1.0 / factor)
     n_obs = int(np.isfinite(compiled.sem_frame.filter(regex=r"^y").to_numpy()).sum())
-    internal = -0.5 * (result.fun + n_obs * LOG_2PI) + n_obs * np.log(factor)
+    internal = semopy_log_likelihood(run, n_obs) + n_obs * np.log(factor)
     own = internal + compiled.scaling.log_jacobian(n_obs)
     return FitOutcome(library="semopy", params=params, own_log_likelihood=float(own),
-                      reported_success=bool(result.success), messages=tuple(dict.fromkeys(messages)),
-                      fits=fits, seconds=time.perf_counter() - began,
+                      reported_success=run.success, messages=run.messages, fits=run.fits,
+                      seconds=time.perf_counter() - began,
                       start="library default" if start is None else "warm start", notes=tuple(notes))
