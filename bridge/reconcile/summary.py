@@ -1,0 +1,201 @@
+"""The numbers behind the report's tables, computed once from a reconciliation.
+
+The mixed-model summary holds the long form's fixed effects (estimate, standard
+error, z, p, 95% interval), its variance components (variances with their standard
+deviations, covariances with their correlations, the residual variance) and its fit
+statistics. The correspondence lines put every quantity's two estimates side by side
+with the verdict and the causes that explain a difference. Renderers only lay these
+out; nothing here depends on an output format.
+
+Information criteria: AIC = -2 L + 2 k and BIC = -2 L + k ln(n), with k counting every
+fixed effect and every variance parameter, n the number of observed occasions, and L
+the criterion the mixed model was fitted by: the log-likelihood under ML, the REML
+criterion under REML (then AIC and BIC compare only models with the same fixed effects).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+from scipy.stats import norm
+
+from ..compile import FixedColumn, Key, cov_key, var_key
+from ..compile.graph import model_graph
+from ..spec import Term
+from .curves import TrajectoryData, trajectory_data
+from .result import Estimate, QuantityRow, Reconciliation
+
+CONFIDENCE = 0.95
+
+
+@dataclass(frozen=True)
+class FixedEffect:
+    """One fixed effect of the long form with its Wald test and interval."""
+
+    key: Key
+    name: str
+    estimate: float
+    se: float
+    z: float
+    p: float
+    lower: float
+    upper: float
+
+
+@dataclass(frozen=True)
+class VarianceComponent:
+    """A variance (with its standard deviation), a covariance (with its correlation) or the residual variance."""
+
+    key: Key
+    name: str
+    kind: str            # "variance", "covariance" or "residual"
+    estimate: float
+    se: float
+    sd: float | None = None
+    correlation: float | None = None
+
+
+@dataclass(frozen=True)
+class FitStatistics:
+    persons: int
+    observations: int
+    method: str                 # "ml" or "reml"
+    criterion: str              # what `log_likelihood` is, in words
+    log_likelihood: float
+    referee_log_likelihood: float
+    parameters: int
+    aic: float
+    bic: float
+
+
+@dataclass(frozen=True)
+class MixedModelSummary:
+    """The long form's table: fixed effects, variance components, fit statistics."""
+
+    fixed: tuple[FixedEffect, ...]
+    variances: tuple[VarianceComponent, ...]
+    fit: FitStatistics
+    confidence: float = CONFIDENCE
+
+
+@dataclass(frozen=True)
+class CorrespondenceLine:
+    """One quantity in both frameworks."""
+
+    key: Key
+    wide_name: str
+    long_name: str
+    sem: Estimate
+    mixed: Estimate
+    difference: float
+    verdict: str
+    causes: tuple[str, ...]
+    explanation: str            # the titles of the causes, or "" when the estimates agree
+
+
+def time_name(rec: Reconciliation) -> str:
+    """The user's name for time (the long layout's time column, or `time`)."""
+    return rec.pair.mixed.shaped.description.data.time or "time"
+
+
+def effect_name(column: FixedColumn, time: str) -> str:
+    """A fixed effect in the user's words: `intercept`, `months`, `months^2`, `format[private] × months`."""
+    term = {Term.INTERCEPT: "", Term.SLOPE: time, Term.QUADRATIC: f"{time}^2"}[column.term]
+    if column.predictor is None:
+        return term or "intercept"
+    return f"{column.predictor.key} × {term}" if term else column.predictor.key
+
+
+def _wald(key: Key, name: str, value: Estimate, confidence: float) -> FixedEffect:
+    z = value.estimate / value.se if value.se and math.isfinite(value.se) and value.se > 0 else math.nan
+    p = float(2 * norm.sf(abs(z))) if math.isfinite(z) else math.nan
+    half = float(norm.ppf(0.5 + confidence / 2)) * value.se
+    return FixedEffect(key, name, value.estimate, value.se, float(z), p, value.estimate - half,
+                       value.estimate + half)
+
+
+def _mixed_estimates(rec: Reconciliation) -> dict[Key, Estimate]:
+    """The long form's estimate of every quantity it has (its one residual variance under `var.residual`)."""
+    out: dict[Key, Estimate] = {}
+    for row in rec.quantities:
+        key = "var.residual" if row.key.startswith("var.residual") else row.key
+        out.setdefault(key, row.mixed)
+    return out
+
+
+def _correlation(cov: float, first: float, second: float) -> float | None:
+    return cov / math.sqrt(first * second) if first > 0 and second > 0 else None
+
+
+def _variance_components(rec: Reconciliation, values: dict[Key, Estimate]) -> tuple[VarianceComponent, ...]:
+    terms = rec.pair.mixed.random_terms
+    out = []
+    for i, second in enumerate(terms):
+        for first in terms[: i + 1]:
+            if first is second and var_key(first) in values:
+                v = values[var_key(first)]
+                out.append(VarianceComponent(var_key(first), first.value, "variance", v.estimate, v.se,
+                                             sd=math.sqrt(v.estimate) if v.estimate >= 0 else None))
+            elif first is not second and cov_key(first, second) in values:
+                c = values[cov_key(first, second)]
+                a, b = values.get(var_key(first)), values.get(var_key(second))
+                r = _correlation(c.estimate, a.estimate, b.estimate) if a and b else None
+                out.append(VarianceComponent(cov_key(first, second), f"{first.value}, {second.value}", "covariance",
+                                             c.estimate, c.se, correlation=r))
+    if "var.residual" in values:
+        v = values["var.residual"]
+        out.append(VarianceComponent("var.residual", "residual", "residual", v.estimate, v.se,
+                                     sd=math.sqrt(v.estimate) if v.estimate >= 0 else None))
+    return tuple(out)
+
+
+def _fit_statistics(rec: Reconciliation, n_fixed: int, n_variance: int) -> FitStatistics:
+    form = rec.data["forms"]["mixed"]
+    reml = rec.data["method"] == "reml"
+    value = float(rec.log_likelihood["mixed"])
+    k = n_fixed + n_variance
+    return FitStatistics(persons=int(form["persons"]), observations=int(form["occasions"]), method=rec.data["method"],
+                         criterion="REML criterion" if reml else "log-likelihood", log_likelihood=value,
+                         referee_log_likelihood=float(rec.log_likelihood["referee_at_mixed"]), parameters=k,
+                         aic=-2 * value + 2 * k, bic=-2 * value + k * math.log(int(form["occasions"])))
+
+
+def mixed_summary(rec: Reconciliation, confidence: float = CONFIDENCE) -> MixedModelSummary:
+    """The long form's fixed effects, variance components and fit statistics, on the user's scale."""
+    values = _mixed_estimates(rec)
+    time = time_name(rec)
+    fixed = tuple(_wald(c.key, effect_name(c, time), values[c.key], confidence)
+                  for c in rec.pair.mixed.fixed_columns if c.key in values)
+    variances = _variance_components(rec, values)
+    return MixedModelSummary(fixed=fixed, variances=variances,
+                             fit=_fit_statistics(rec, len(fixed), len(variances)), confidence=confidence)
+
+
+def _line(row: QuantityRow, titles: dict[str, str]) -> CorrespondenceLine:
+    return CorrespondenceLine(key=row.key, wide_name=row.wide_name, long_name=row.long_name, sem=row.sem,
+                              mixed=row.mixed, difference=row.difference, verdict=row.verdict.value,
+                              causes=row.causes, explanation="; ".join(titles.get(c, c) for c in row.causes))
+
+
+def correspondence_lines(rec: Reconciliation) -> tuple[CorrespondenceLine, ...]:
+    """Every reconciled quantity with both estimates, the difference, the verdict and its causes."""
+    titles = {e.cause: e.title for e in rec.explanations}
+    return tuple(_line(row, titles) for row in rec.quantities)
+
+
+@dataclass(frozen=True)
+class ReportContent:
+    """Everything the report shows, computed by the stages; renderers only lay it out."""
+
+    reconciliation: Reconciliation
+    mixed: MixedModelSummary
+    correspondence: tuple[CorrespondenceLine, ...]
+    trajectories: TrajectoryData
+    graph: Any = field(compare=False, repr=False)   # the wide form's networkx graph (bridge.compile.graph)
+
+
+def report_content(rec: Reconciliation) -> ReportContent:
+    """The tables' numbers, the trajectory data and the model's graph for one reconciliation."""
+    return ReportContent(reconciliation=rec, mixed=mixed_summary(rec), correspondence=correspondence_lines(rec),
+                         trajectories=trajectory_data(rec), graph=model_graph(rec.pair.sem))

@@ -1,0 +1,183 @@
+"""The report's tables as Markdown, HTML, LaTeX and CSV: one layout (a `Grid`), four writers.
+
+Pure: the numbers come from `bridge.reconcile.summary`; here they are only laid out and
+printed (four significant digits in text formats, full precision in CSV). Every text
+from the user's files is escaped for the format it lands in.
+"""
+from __future__ import annotations
+
+import csv
+import html
+import io
+from dataclasses import dataclass
+from typing import Union
+
+from ..reconcile.summary import CorrespondenceLine, MixedModelSummary
+from .formats import exact, number, p_value
+
+Cell = Union[str, int, float, None]
+
+#: A cell is text, a count, a number (NaN when it could not be computed) or None when it does not apply.
+#: Column kinds: how a cell is printed. `text` as is, `number` four significant digits, `p` a p-value,
+#: `stat` a fit statistic (integers as they are, other numbers with three decimals).
+TEXT, NUMBER, P, STAT = "text", "number", "p", "stat"
+
+
+@dataclass(frozen=True)
+class Grid:
+    """One table laid out: a file stem, a title, headings, cells, and notes under the table."""
+
+    name: str
+    title: str
+    headings: tuple[str, ...]
+    kinds: tuple[str, ...]
+    rows: tuple[tuple[Cell, ...], ...]
+    notes: tuple[str, ...] = ()
+
+
+def _cell(value: Cell, kind: str) -> str:
+    if value is None:      # not applicable (a missing number is NaN and prints as n/a)
+        return ""
+    if isinstance(value, str):
+        return value
+    if kind == P:
+        return p_value(value)
+    if kind == STAT and isinstance(value, int):
+        return str(value)
+    if kind == STAT and value is not None:
+        return f"{value:.3f}"
+    return number(value)
+
+
+def _csv_cell(value: Cell) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, str):
+        return value
+    if isinstance(value, int):
+        return str(value)
+    return exact(value)
+
+
+# ---------------------------------------------------------------------------- layouts
+
+def fixed_effects_grid(summary: MixedModelSummary) -> Grid:
+    level = f"{summary.confidence:.0%}"
+    return Grid("fixed-effects", "Long form (mixed model): fixed effects",
+                ("effect", "estimate", "SE", "z", "p", f"{level} lower", f"{level} upper"),
+                (TEXT, NUMBER, NUMBER, NUMBER, P, NUMBER, NUMBER),
+                tuple((f.name, f.estimate, f.se, f.z, f.p, f.lower, f.upper) for f in summary.fixed),
+                (f"z = estimate / SE; two-sided p and {level} interval from the normal distribution; "
+                 "standard errors from the referee.",))
+
+
+def variance_grid(summary: MixedModelSummary) -> Grid:
+    return Grid("variance-components", "Long form (mixed model): person effects and residual",
+                ("component", "kind", "estimate", "SE", "SD", "correlation"),
+                (TEXT, TEXT, NUMBER, NUMBER, NUMBER, NUMBER),
+                tuple((v.name, v.kind, v.estimate, v.se, v.sd, v.correlation) for v in summary.variances),
+                ("SD: square root of a variance; correlation: a covariance over the product of the two SDs.",))
+
+
+def fit_grid(summary: MixedModelSummary) -> Grid:
+    f = summary.fit
+    rows = (("persons", f.persons), ("observations", f.observations), ("method", f.method.upper()),
+            (f.criterion, f.log_likelihood), ("ML log-likelihood (referee, exact times)", f.referee_log_likelihood),
+            ("parameters", f.parameters), ("AIC", f.aic), ("BIC", f.bic))
+    basis = "the REML criterion" if f.method == "reml" else "the log-likelihood"
+    return Grid("fit", "Long form (mixed model): fit", ("statistic", "value"), (TEXT, STAT), rows,
+                (f"AIC = -2 L + 2 k and BIC = -2 L + k ln(observations), with L {basis} and k counting every "
+                 "fixed effect and variance parameter.",))
+
+
+def correspondence_grid(lines: tuple[CorrespondenceLine, ...]) -> Grid:
+    return Grid("correspondence", "Each quantity in both frameworks",
+                ("quantity", "wide form (SEM)", "long form (mixed model)", "SEM estimate", "mixed estimate",
+                 "difference", "verdict", "explained by"),
+                (TEXT, TEXT, TEXT, NUMBER, NUMBER, NUMBER, TEXT, TEXT),
+                tuple((c.key, c.wide_name, c.long_name, c.sem.estimate, c.mixed.estimate, c.difference, c.verdict,
+                       c.explanation) for c in lines),
+                ("difference = SEM estimate - mixed estimate.",))
+
+
+def mixed_grids(summary: MixedModelSummary) -> tuple[Grid, ...]:
+    """The mixed-model table in its three parts."""
+    return fixed_effects_grid(summary), variance_grid(summary), fit_grid(summary)
+
+
+# ---------------------------------------------------------------------------- Markdown
+
+_MD = str.maketrans({"\\": "\\\\", "|": "\\|", "*": "\\*", "_": "\\_", "`": "\\`", "<": "&lt;", ">": "&gt;",
+                     "&": "&amp;", "\n": " "})
+
+
+def md_escape(text: str) -> str:
+    """Text made literal in a Markdown table cell (no emphasis, no inline HTML, no column breaks)."""
+    return text.translate(_MD)
+
+
+def markdown(grids: tuple[Grid, ...]) -> str:
+    """The tables as Markdown, one section per table."""
+    parts = []
+    for grid in grids:
+        right = [kind != TEXT for kind in grid.kinds]
+        lines = [f"### {md_escape(grid.title)}", "",
+                 "| " + " | ".join(md_escape(h) for h in grid.headings) + " |",
+                 "|" + "|".join("---:" if r else ":---" for r in right) + "|"]
+        lines += ["| " + " | ".join(md_escape(_cell(v, k)) for v, k in zip(row, grid.kinds)) + " |"
+                  for row in grid.rows]
+        lines += [""] + [f"{md_escape(note)}" for note in grid.notes]
+        parts.append("\n".join(lines) + "\n")
+    return "\n".join(parts)
+
+
+# ---------------------------------------------------------------------------- HTML
+
+def html_table(grid: Grid) -> str:
+    """One table as an HTML fragment (every text escaped)."""
+    def cls(kind: str) -> str:
+        return "" if kind == TEXT else ' class="num"'
+    head = "".join(f"<th{cls(k)}>{html.escape(h)}</th>" for h, k in zip(grid.headings, grid.kinds))
+    body = "".join("<tr>" + "".join(f"<td{cls(k)}>{html.escape(_cell(v, k))}</td>" for v, k in zip(row, grid.kinds))
+                   + "</tr>\n" for row in grid.rows)
+    notes = "".join(f'<p class="note">{html.escape(n)}</p>\n' for n in grid.notes)
+    return (f'<table class="grid" id="{html.escape(grid.name)}">\n<caption>{html.escape(grid.title)}</caption>\n'
+            f"<thead><tr>{head}</tr></thead>\n<tbody>\n{body}</tbody>\n</table>\n{notes}")
+
+
+# ---------------------------------------------------------------------------- LaTeX
+
+_TEX = str.maketrans({"\\": r"\textbackslash{}", "{": r"\{", "}": r"\}", "_": r"\_", "%": r"\%", "&": r"\&",
+                      "#": r"\#", "$": r"\$", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
+                      "<": r"\textless{}", ">": r"\textgreater{}", "[": "{[}", "]": "{]}", "×": r"$\times$",
+                      "\n": " "})
+
+
+def tex_escape(text: str) -> str:
+    """Text made literal in LaTeX: the ten special characters, angle brackets and brackets neutralised."""
+    return text.translate(_TEX)
+
+
+def latex(grids: tuple[Grid, ...]) -> str:
+    """The tables as LaTeX `table` environments using plain `tabular` (no packages needed)."""
+    parts = []
+    for grid in grids:
+        spec = "".join("l" if kind == TEXT else "r" for kind in grid.kinds)
+        rows = [" & ".join(tex_escape(_cell(v, k)) for v, k in zip(row, grid.kinds)) + r" \\" for row in grid.rows]
+        notes = [r"\par\smallskip{\footnotesize " + tex_escape(n) + "}" for n in grid.notes]
+        parts.append("\n".join([r"\begin{table}[htbp]", r"\centering", rf"\caption{{{tex_escape(grid.title)}}}",
+                                rf"\begin{{tabular}}{{{spec}}}", r"\hline",
+                                " & ".join(tex_escape(h) for h in grid.headings) + r" \\", r"\hline", *rows,
+                                r"\hline", r"\end{tabular}", *notes, r"\end{table}"]) + "\n")
+    return "\n".join(parts)
+
+
+# ---------------------------------------------------------------------------- CSV
+
+def csv_text(grid: Grid) -> str:
+    """One table as CSV: the headings, then the cells at full precision (empty when missing)."""
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(grid.headings)
+    writer.writerows([_csv_cell(v) for v in row] for row in grid.rows)
+    return out.getvalue()
