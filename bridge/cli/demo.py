@@ -10,6 +10,7 @@ from ..demo import files as demo_files
 from ..render import json as json_render
 from ..render import terminal
 from .app import QUIET, app, guarded, progress, stdout_console, write_text
+from .report import write_report
 
 
 @app.command("demo")
@@ -24,5 +25,6 @@ def demo_command(
     terminal.render(result, stdout_console())
     result_path = spec.with_suffix(".json")
     write_text(result_path, json_render.to_json(result))
-    typer.echo(f"\nDemo description and data: {spec.parent}\nResult as JSON: {result_path}")
+    page = write_report(result, spec.parent / "report")
+    typer.echo(f"\nDemo description and data: {spec.parent}\nResult as JSON: {result_path}\nReport: {page}")
     raise typer.Exit(result.exit_code)
