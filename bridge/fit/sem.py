@@ -33,6 +33,26 @@ def _active_names(model: semopy.ModelMeans) -> list[str]:
     return [name for name, p in model.parameters.items() if p.active]
 
 
+def start_covariance(frame: pd.DataFrame) -> pd.DataFrame | None:
+    """A sample covariance for semopy's start values when the pairwise one is undefined, else None.
+
+    semopy derives start values from the pairwise sample covariance, which does not exist
+    when two columns are never observed together (a fine wave grid over individually
+    varying times); unknown covariances become 0 and unknown variances the mean known one.
+    Only the start changes: the full-information objective uses the raw data.
+    """
+    pairwise = frame.cov(min_periods=2, ddof=0)
+    values = pairwise.to_numpy(copy=True)
+    if np.isfinite(values).all():
+        return None
+    diagonal = np.diag(values).copy()
+    known = np.isfinite(diagonal) & (diagonal > 0)
+    diagonal[~known] = diagonal[known].mean() if known.any() else 1.0
+    values[~np.isfinite(values)] = 0.0
+    np.fill_diagonal(values, diagonal)
+    return pd.DataFrame(values, index=pairwise.index, columns=pairwise.columns)
+
+
 def run_semopy(text: str, frame: pd.DataFrame, start: dict[str, float] | None = None) -> SemopyRun:
     """Fit a semopy model text by full-information ML; refit until the objective stops improving.
 
@@ -42,14 +62,15 @@ def run_semopy(text: str, frame: pd.DataFrame, start: dict[str, float] | None = 
         model = semopy.ModelMeans(text)
     except Exception as exc:  # semopy raises bare exceptions from its parser
         raise FitError(f"semopy rejected the generated wide-form model ({exc})") from exc
+    covariance = start_covariance(frame)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         if start is not None:
-            model.load(frame)
+            model.load(frame, cov=covariance)
             model.param_vals = np.array([start[name] for name in _active_names(model)])
         last, fits, result = np.inf, 0, None
         while fits < MAX_FITS:
-            result = model.fit(frame, obj="ML", clean_slate=False)
+            result = model.fit(frame, cov=covariance, obj="ML", clean_slate=False)
             fits += 1
             if not np.isfinite(result.fun) or last - result.fun <= RELATIVE_GAIN * max(1.0, abs(result.fun)):
                 break
