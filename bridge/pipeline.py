@@ -9,9 +9,10 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from .compile import CompiledPair, Plan, compile_pair
-from .data import ShapedData, shape_data
+from .data import ShapedData, shape_data, shape_panel
+from .errors import DescriptionError
 from .progress import Progress, quiet
-from .spec import Description, load
+from .spec import Description, Kind, load
 
 if TYPE_CHECKING:
     from .reconcile import Reconciliation
@@ -23,8 +24,11 @@ def _description(description: Description | str | Path) -> Description:
 
 
 def shape(description: Description | str | Path) -> ShapedData:
-    """Load (if given a path) and shape a description's data."""
-    return shape_data(_description(description))
+    """Load (if given a path) and shape a growth description's data."""
+    desc = _description(description)
+    if desc.model.kind is Kind.CROSS_LAGGED:
+        raise DescriptionError(f"{desc.label}: model.kind is cross-lagged; this step is for growth models")
+    return shape_data(desc)
 
 
 def compile_description(description: Description | str | Path) -> CompiledPair:
@@ -44,7 +48,15 @@ def evaluate_description(description: Description | str | Path, progress: Progre
 def run(description: Description | str | Path, progress: Progress = quiet) -> "Reconciliation":
     """The main job: one description in, one reconciliation with explanations out."""
     with progress("reading the description and data"):
-        shaped = shape(description)
+        desc = _description(description)
+        if desc.model.kind is Kind.CROSS_LAGGED:
+            panel = shape_panel(desc)
+    if desc.model.kind is Kind.CROSS_LAGGED:
+        from .reconcile.panel import run_panel
+
+        return run_panel(panel, progress)
+    with progress("reading the description and data"):
+        shaped = shape_data(desc)
     return run_shaped(shaped, progress)
 
 

@@ -1,7 +1,7 @@
 """Stage 1: the model description, its vocabulary and the YAML loader."""
 from .description import DataSection, Description, EstimationSection, FormSettings, ModelSection
 from .loader import load
-from .vocabulary import Kind, Layout, Method, Missing, Residuals, Shape, Term, terms_of
+from .vocabulary import Kind, Layout, Method, Missing, Paths, Residuals, Shape, Term, Variant, terms_of
 
 __all__ = ["DataSection", "Description", "EstimationSection", "FormSettings", "ModelSection", "load", "Kind", "Layout",
-           "Method", "Missing", "Residuals", "Shape", "Term", "terms_of"]
+           "Method", "Missing", "Paths", "Residuals", "Variant", "Shape", "Term", "terms_of"]

@@ -4,7 +4,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .vocabulary import Kind, Layout, Method, Missing, Residuals, Shape, Term, terms_of
+from .vocabulary import Kind, Layout, Method, Missing, Paths, Residuals, Shape, Term, Variant, terms_of
 
 
 @dataclass(frozen=True)
@@ -17,6 +17,8 @@ class DataSection:
     time: str | None = None
     outcome: str | None = None
     columns: tuple[tuple[str, float], ...] = ()
+    outcomes: tuple[str, ...] = ()      # cross-lagged, long layout
+    panel_columns: tuple[tuple[str, tuple[tuple[str, float], ...]], ...] = ()  # cross-lagged, wide layout
 
     @property
     def column_times(self) -> dict[str, float]:
@@ -35,6 +37,8 @@ class ModelSection:
     residuals: Residuals = Residuals.EQUAL
     time_origin: float = 0.0
     reference_levels: tuple[tuple[str, str], ...] = ()
+    variant: Variant = Variant.CLPM
+    paths: Paths = Paths.TIME_INVARIANT
 
     @property
     def terms(self) -> tuple[Term, ...]:

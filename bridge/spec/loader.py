@@ -14,13 +14,13 @@ import yaml
 
 from ..errors import DescriptionError
 from .description import DataSection, Description, EstimationSection, FormSettings, ModelSection
-from .vocabulary import Kind, Layout, Method, Missing, Residuals, Shape, Term, terms_of
+from .vocabulary import Kind, Layout, Method, Missing, Paths, Residuals, Shape, Term, Variant, terms_of
 
 _KEYS = {
     "": {"data", "model", "estimation", "forms"},
-    "data": {"path", "layout", "person", "time", "outcome", "columns"},
+    "data": {"path", "layout", "person", "time", "outcome", "outcomes", "columns"},
     "model": {"kind", "shape", "random", "predictors", "categorical", "residuals", "time_origin",
-              "reference_levels"},
+              "reference_levels", "variant", "paths"},
     "estimation": {"method", "missing", "waves"},
     "forms": {"sem", "mixed"},
     "forms.sem": {"missing", "time_origin", "time_scale"},
@@ -132,12 +132,40 @@ def _data_section(r: _Reader, base: Path) -> DataSection | None:
     path, person = r.text("data.path"), r.text("data.person")
     layout = r.word("data.layout", Layout, Layout.LONG.value)
     time = r.text("data.time", required=layout is Layout.LONG)
-    outcome = r.text("data.outcome", required=layout is Layout.LONG)
-    columns = _wide_columns(r) if layout is Layout.WIDE else ()
+    panel = r.get("model.kind") == Kind.CROSS_LAGGED.value
+    if panel:
+        outcomes = _outcomes(r) if layout is Layout.LONG else ()
+        panel_columns = _panel_columns(r) if layout is Layout.WIDE else ()
+        outcome, columns = None, ()
+    else:
+        outcomes, panel_columns = (), ()
+        outcome = r.text("data.outcome", required=layout is Layout.LONG)
+        columns = _wide_columns(r) if layout is Layout.WIDE else ()
     if None in (path, person):
         return None
-    return DataSection(path=(base / path).resolve(), layout=layout, person=person,
-                       time=time, outcome=outcome, columns=columns)
+    return DataSection(path=(base / path).resolve(), layout=layout, person=person, time=time, outcome=outcome,
+                       columns=columns, outcomes=outcomes, panel_columns=panel_columns)
+
+
+def _outcomes(r: _Reader) -> tuple[str, ...]:
+    value = r.get("data.outcomes")
+    if not isinstance(value, list) or len(value) < 2 or not all(isinstance(v, str) and v for v in value) \
+            or len(set(value)) != len(value):
+        r.problem("data.outcomes", "a list of at least two different outcome columns for a cross-lagged model", value)
+        return ()
+    return tuple(value)
+
+
+def _panel_columns(r: _Reader) -> tuple[tuple[str, tuple[tuple[str, float], ...]], ...]:
+    value = r.get("data.columns")
+    if not isinstance(value, dict) or len(value) < 2 or not all(isinstance(v, dict) for v in value.values()):
+        r.problem("data.columns", "a mapping of at least two outcomes, each to its columns and their waves", value)
+        return ()
+    out = []
+    for name, columns in value.items():
+        pairs = [(str(col), r.number(f"data.columns.{name}.{col}", t)) for col, t in columns.items()]
+        out.append((str(name), tuple((c, t) for c, t in pairs if t is not None)))
+    return tuple(out)
 
 
 def _wide_columns(r: _Reader) -> tuple[tuple[str, float], ...]:
@@ -172,7 +200,9 @@ def _model_section(r: _Reader) -> ModelSection:
             r.problem("model.categorical", "predictors listed in model.predictors", name)
     origin = r.number("model.time_origin", r.get("model.time_origin", 0.0))
     references = _reference_levels(r, predictors)
-    return ModelSection(kind=kind, shape=shape, random=tuple(sorted(random, key=lambda t: t.power)),
+    variant = r.word("model.variant", Variant, Variant.CLPM.value)
+    paths = r.word("model.paths", Paths, Paths.TIME_INVARIANT.value)
+    return ModelSection(kind=kind, shape=shape, variant=variant, paths=paths, random=tuple(sorted(random, key=lambda t: t.power)),
                         predictors=tuple(predictors), categorical=tuple(categorical), residuals=r.word("model.residuals", Residuals, "equal"),
                         time_origin=origin or 0.0, reference_levels=references)
 

@@ -25,6 +25,20 @@ class Layout(Words):
 
 class Kind(Words):
     GROWTH = "growth"
+    CROSS_LAGGED = "cross-lagged"
+
+
+class Variant(Words):
+    """The cross-lagged family's three models."""
+
+    CLPM = "clpm"
+    DYNAMIC_PANEL = "dynamic-panel"
+    RI_CLPM = "ri-clpm"
+
+
+class Paths(Words):
+    TIME_INVARIANT = "time-invariant"
+    WAVE_SPECIFIC = "wave-specific"
 
 
 class Shape(Words):
