@@ -139,6 +139,11 @@ def test_graphviz_pure_draws_when_no_system_dot(monkeypatch):
     assert sorted(files) == ["tiny.dot", "tiny.png", "tiny.svg"]
 
 
+def test_a_system_dot_is_preferred_and_writes_pdf(monkeypatch):
+    monkeypatch.setattr(shutil, "which", lambda name, *a, **k: "/opt/graphviz/bin/dot" if name == "dot" else None)
+    assert diagram.find_renderer() == diagram.Renderer(Path("/opt/graphviz/bin/dot"), pdf=True)
+
+
 def test_no_renderer_is_a_one_line_error(monkeypatch, tmp_path):
     monkeypatch.setattr(shutil, "which", lambda *a, **k: None)
     monkeypatch.setattr(sys, "executable", str(tmp_path / "python"))

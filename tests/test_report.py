@@ -7,6 +7,7 @@ One small simulated data set is fitted once for the module; its predictor column
 from __future__ import annotations
 
 import csv
+import dataclasses
 import html.parser
 import io
 import json
@@ -27,6 +28,7 @@ from conftest import write_case
 import bridge
 from bridge.reconcile.summary import mixed_summary, report_content
 from bridge.render.formats import number
+from bridge.render import tables
 from bridge.render.report import report_files
 from bridge.render.tables import md_escape, tex_escape
 from bridge.simulate.growth import GrowthTruth, simulate_growth
@@ -116,6 +118,16 @@ def test_mixed_model_statistics(report):
     variances = [v.estimate for v in summary.variances if v.kind == "variance"]
     assert covariance.correlation == pytest.approx(covariance.estimate / math.sqrt(variances[0] * variances[1]))
     assert "AIC" in text(files, "mixed-model.md") and "log-likelihood" in text(files, "fit.csv")
+
+
+def test_under_reml_the_information_criteria_use_the_reml_criterion(report):
+    rec, _, _, _ = report
+    reml = dataclasses.replace(rec, data={**rec.data, "method": "reml"},
+                               log_likelihood={**rec.log_likelihood, "mixed": -600.0})
+    fit = mixed_summary(reml).fit
+    assert fit.criterion == "REML criterion" and fit.log_likelihood == -600.0
+    assert fit.aic == pytest.approx(1200.0 + 16) and fit.bic == pytest.approx(1200.0 + 8 * math.log(320))
+    assert "the REML criterion" in tables.fit_grid(mixed_summary(reml)).notes[0]
 
 
 def test_latex_escapes_special_characters(report):
