@@ -37,6 +37,17 @@ def compile_description(description: Description | str | Path) -> CompiledPair:
     return compile_pair(shaped, Plan.from_description(shaped.description))
 
 
+def compile_cross_lagged(description: Description | str | Path):
+    """The wide path model(s) and long lagged regressions of a cross-lagged description, without fitting."""
+    from .compile.panel import compile_panel
+
+    return compile_panel(shape_panel(_description(description)))
+
+
+def is_cross_lagged(description: Description | str | Path) -> bool:
+    return _description(description).model.kind is Kind.CROSS_LAGGED
+
+
 def evaluate_description(description: Description | str | Path, progress: Progress = quiet) -> "Evaluation":
     """Fit both forms as described and let the referee adjudicate (no explanations)."""
     from .reconcile.evaluation import evaluate

@@ -39,6 +39,10 @@ def _workspace(folder: Path) -> None:
     long["column"] = [f"score_m{waves[np.abs(waves - t).argmin()]}" for t in long["months"]]
     wide = long.pivot(index=["student", "format"], columns="column", values="score").reset_index()
     wide.to_csv(folder / "sight_reading_wide.csv", index=False)
+    weekly = pd.read_csv(folder / "weekly_practice.csv")
+    weekly = weekly.pivot(index="student", columns="week", values=["practice", "confidence"])
+    weekly.columns = [f"{name}_{week}" for name, week in weekly.columns]
+    weekly.reset_index().to_csv(folder / "weekly_practice_wide.csv", index=False)
 
 
 YAML_CASES = [(page.name, i, body) for page in PAGES for i, body in enumerate(blocks(page, "yaml"))]
@@ -52,6 +56,13 @@ def test_yaml_example_loads_and_compiles(tmp_path, page, index, body):
         example = _merge(yaml.safe_load(GROWTH_DESCRIPTION.read_text(encoding="utf-8")), example)
     spec = tmp_path / "example.yaml"
     spec.write_text(yaml.safe_dump(example), encoding="utf-8")
+    if example.get("model", {}).get("kind") == "cross-lagged":
+        from bridge.compile.panel import compile_panel
+        from bridge.data import shape_panel
+
+        compiled = compile_panel(shape_panel(bridge.load(spec)))
+        assert compiled.keys and " ~ " in compiled.sem.text()
+        return
     pair = bridge.compile_description(spec)
     assert pair.sem.keys and "=~" in pair.sem.sem_text
 

@@ -16,6 +16,7 @@ from .nickell import nickell_bias
 from .panel_fit import PanelFits, fit_panel
 from .result import Estimate, Explanation, Finding, QuantityRow, Reconciliation, Verdict
 from .tolerance import DEFAULT_TOLERANCE
+from ..compile.panel_texts import legend, long_text
 
 _NOT_COMPARED = {Variant.CLPM: ("var.trait", "cov.trait"), Variant.DYNAMIC_PANEL: ("cov.trait",),
                  Variant.RI_CLPM: ("var.trait", "cov.trait", "intercept", "var.residual", "cov.residual")}
@@ -136,23 +137,6 @@ def _missing(compiled: CompiledPanel, base: PanelFits, rows: dict) -> list[Expla
                           "complete_persons": complete.panel.n_persons})] if keys else []
 
 
-def _long_text(compiled: CompiledPanel) -> str:
-    names = compiled.panel.names
-    centred = compiled.variant is Variant.RI_CLPM
-    lag = "lag centred on the person's mean" if centred else "lag"
-    lines = []
-    for eq in compiled.equations:
-        rhs = " + ".join(f"{names[j]} {lag}" for j in range(len(names)))
-        if compiled.variant is Variant.CLPM:
-            call = f"statsmodels OLS: {names[eq.outcome]} ~ constant + {rhs}"
-            call += " (one regression per wave)" if compiled.paths.value == "wave-specific" else " (all waves pooled)"
-        else:
-            call = (f"statsmodels MixedLM (array interface, ML): {names[eq.outcome]} ~ constant + {rhs}, "
-                    "random intercept by person")
-        lines.append(f"{call}; {len(eq.y)} rows")
-    return "\n".join(lines) + "\n"
-
-
 def _timing(panel: PanelData) -> dict:
     complete = bool(np.isfinite(panel.values).all())
     return {"design": "balanced" if complete else "balanced-missing", "waves": list(panel.waves),
@@ -208,15 +192,5 @@ def run_panel(panel: PanelData, progress: Progress = quiet) -> Reconciliation:
               "method": "ml", "variant": compiled.variant.value, "paths": compiled.paths.value,
               "outcomes": list(panel.names), "long_rows": dict(zip(panel.names, n_rows)), "predictors": []},
         tolerance=DEFAULT_TOLERANCE.describe(),
-        specifications={"wide": base.model.text(), "long": _long_text(compiled), "legend": _legend(compiled)},
+        specifications={"wide": base.model.text(), "long": long_text(compiled), "legend": legend(compiled)},
         caution=CAUTION, pair=compiled)
-
-
-def _legend(compiled: CompiledPanel) -> str:
-    names, waves = compiled.panel.names, compiled.panel.waves
-    lines = [f"v{k}_{t} = {name} at wave {w:g} x {compiled.scale:.6g}" for t, w in enumerate(waves)
-             for k, name in enumerate(names)]
-    lines += {Variant.DYNAMIC_PANEL: [f"h{k} = stable person effect on {n}" for k, n in enumerate(names)],
-              Variant.RI_CLPM: [f"k{k} = stable trait of {n}; w{k}_t = within-person part of {n} at wave t"
-                                for k, n in enumerate(names)]}.get(compiled.variant, [])
-    return "\n".join(lines) + "\n"
