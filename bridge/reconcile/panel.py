@@ -123,7 +123,8 @@ def _short_panel(fits: PanelFits, rows: dict) -> list[Explanation]:
 
 def _missing(compiled: CompiledPanel, base: PanelFits, rows: dict) -> list[Explanation]:
     complete = compile_panel(_complete(compiled.panel))
-    fitted = fit_panel(complete, complete.relaxed if base.model is compiled.relaxed else complete.sem)
+    fitted = fit_panel(complete, complete.relaxed if base.model is compiled.relaxed else complete.sem,
+                       start=base.sem.values)
     after = {r.key: r for r in panel_rows(fitted)}
     keys = [k for k, r in rows.items() if r.verdict is Verdict.UNEXPLAINED and after[k].verdict is Verdict.AGREE]
     _mark(rows, keys, "missing-data")
@@ -166,7 +167,7 @@ def run_panel(panel: PanelData, progress: Progress = quiet) -> Reconciliation:
     explanations = _optimizer(base, rows)
     if dynamic:
         with progress("refitting with the person effect unrelated to the first wave"):
-            explanations += _initial_conditions(base, fit_panel(compiled, compiled.sem), rows)
+            explanations += _initial_conditions(base, fit_panel(compiled, compiled.sem, start=base.sem.values), rows)
     if compiled.variant is Variant.RI_CLPM:
         explanations += _short_panel(base, rows)
     if not np.isfinite(panel.values).all() and any(r.verdict is Verdict.UNEXPLAINED for r in rows.values()):

@@ -72,11 +72,15 @@ def _better_long(compiled: CompiledPanel, fits: list[EquationFit], sem_values: d
     return out
 
 
-def fit_panel(compiled: CompiledPanel, model: PathModel) -> PanelFits:
-    """Both forms of one plan, each checked by the referee and refitted when another point scores higher."""
+def fit_panel(compiled: CompiledPanel, model: PathModel, start: dict[str, float] | None = None) -> PanelFits:
+    """Both forms of one plan, each checked by the referee and refitted when another point scores higher.
+
+    `start` (values by label, from a related fit) only speeds up the wide form's first fit.
+    """
     frame = compiled.frame
     referee = PathReferee(model, frame.to_numpy())
-    first_sem = sem = run_semopy(model.text(), frame)
+    start = None if start is None else {label: start.get(label, 0.0) for label in model.labels}
+    first_sem = sem = run_semopy(model.text(), frame, start=start)
     first_long = long = _long_fits(compiled)
     refits: list[Refit] = []
     long = _better_long(compiled, long, sem.values, refits)
