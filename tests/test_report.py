@@ -302,8 +302,11 @@ def test_demo_writes_the_report(tmp_path):
     done = subprocess.run([sys.executable, "-m", "bridge.cli", "demo", "--out", str(tmp_path / "demo"), "--quiet"],
                           capture_output=True, text=True, timeout=600)
     assert done.returncode == 0, done.stderr
-    page = tmp_path / "demo" / "report" / "report.html"
-    assert f"Report: {page}" in done.stdout
-    content = page.read_text(encoding="utf-8")
+    folder = tmp_path / "demo" / "sight_reading-report"
+    assert f"report {folder / 'report.html'}" in done.stdout
+    content = (folder / "report.html").read_text(encoding="utf-8")
     assert "sight_reading.yaml" in content and "format[private]" in content
-    assert (tmp_path / "demo" / "report" / "path-diagram.svg").exists()
+    assert {"path-diagram.svg", "path-diagram.dot", "mixed-model.tex", "trajectories.png"} <= \
+        {p.name for p in folder.iterdir()}
+    reports = sorted(p.parent.name for p in (tmp_path / "demo").glob("*/report.html"))
+    assert len(reports) == 2 and all(name.endswith("-report") for name in reports)

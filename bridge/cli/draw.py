@@ -28,10 +28,10 @@ def draw_command(
     folder = out if out is not None else Path(f"{spec.stem}-figure")
     with guarded():
         if structure_only:
-            source = diagram.diagram_source(model_graph(pipeline.compile_description(spec).sem))
+            source = diagram.diagram_source(model_graph(getattr(pipeline.compile_description(spec), "sem", None)))
         else:
             result = pipeline.run(spec, progress=progress(quiet))
-            source = diagram.diagram_source(model_graph(result.pair.sem), diagram.estimates_of(result),
+            source = diagram.diagram_source(model_graph(getattr(result.pair, "sem", None)), diagram.estimates_of(result),
                                             show_se=not no_se)
         files = diagram.figure_files(source, "path-diagram")
     write_files(folder, files)

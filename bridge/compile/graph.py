@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import networkx as nx
 
+from ..errors import SembridgeError
 from ..spec import Term
 from ..spec.vocabulary import Words
 from .growth import CompiledGrowth
@@ -110,8 +111,12 @@ def growth_graph(compiled: CompiledGrowth) -> nx.MultiDiGraph:
     return graph
 
 
-def model_graph(compiled: CompiledGrowth) -> nx.MultiDiGraph:
+class NoGraph(SembridgeError):
+    """The model family has no graph (and so no path figure) yet."""
+
+
+def model_graph(compiled) -> nx.MultiDiGraph:
     """The graph of a compiled wide-form model, whatever its family (today: growth models)."""
     if isinstance(compiled, CompiledGrowth):
         return growth_graph(compiled)
-    raise TypeError(f"no graph for a {type(compiled).__name__}")
+    raise NoGraph("the path figure is drawn for growth models only; this model family has none yet")

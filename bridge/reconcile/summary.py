@@ -20,7 +20,7 @@ from typing import Any
 
 from scipy.stats import norm
 
-from ..compile import FixedColumn, Key, cov_key, var_key
+from ..compile import CompiledPair, FixedColumn, Key, cov_key, var_key
 from ..compile.graph import model_graph
 from ..spec import Term
 from .curves import TrajectoryData, trajectory_data
@@ -186,16 +186,23 @@ def correspondence_lines(rec: Reconciliation) -> tuple[CorrespondenceLine, ...]:
 
 @dataclass(frozen=True)
 class ReportContent:
-    """Everything the report shows, computed by the stages; renderers only lay it out."""
+    """Everything the report shows, computed by the stages; renderers only lay it out.
+
+    `mixed`, `trajectories` and `graph` are None for a model family that has no growth
+    structure (the report then shows the correspondence, timing, explanations and caution).
+    """
 
     reconciliation: Reconciliation
-    mixed: MixedModelSummary
     correspondence: tuple[CorrespondenceLine, ...]
-    trajectories: TrajectoryData
-    graph: Any = field(compare=False, repr=False)   # the wide form's networkx graph (bridge.compile.graph)
+    mixed: MixedModelSummary | None = None
+    trajectories: TrajectoryData | None = None
+    graph: Any = field(default=None, compare=False, repr=False)   # networkx graph of the wide form
 
 
 def report_content(rec: Reconciliation) -> ReportContent:
     """The tables' numbers, the trajectory data and the model's graph for one reconciliation."""
-    return ReportContent(reconciliation=rec, mixed=mixed_summary(rec), correspondence=correspondence_lines(rec),
+    lines = correspondence_lines(rec)
+    if not isinstance(rec.pair, CompiledPair):
+        return ReportContent(reconciliation=rec, correspondence=lines)
+    return ReportContent(reconciliation=rec, correspondence=lines, mixed=mixed_summary(rec),
                          trajectories=trajectory_data(rec), graph=model_graph(rec.pair.sem))

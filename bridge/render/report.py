@@ -58,6 +58,10 @@ def _header(content: ReportContent) -> str:
 
 
 def _model_section(content: ReportContent, figures: dict[str, bytes]) -> str:
+    if content.graph is None or content.mixed is None:
+        return ('<section id="model">\n<h2>The model</h2>\n<p class="note">The path figure and the mixed-model '
+                "table are drawn for growth models; for this model family the correspondence table below "
+                "shows every estimate.</p>\n</section>\n")
     mixed = "".join(tables.html_table(grid) for grid in tables.mixed_grids(content.mixed))
     figure = _image(figures["path-diagram.svg"], "image/svg+xml", "path figure of the wide form")
     caption = ("Wide form (latent growth curve). Rectangles: measured waves and predictors; ellipses: growth "
@@ -71,6 +75,8 @@ def _model_section(content: ReportContent, figures: dict[str, bytes]) -> str:
 
 
 def _trajectory_section(figures: dict[str, bytes]) -> str:
+    if "trajectories.svg" not in figures:
+        return ""
     figure = _image(figures["trajectories.svg"], "image/svg+xml", "observed trajectories and implied means")
     return (f'<section id="trajectories">\n<h2>Observed trajectories and the implied means</h2>\n'
             f"<figure>{figure}<figcaption>Thin lines: observed persons. Thick solid lines: the mean implied by "
@@ -89,16 +95,18 @@ def _dl(pairs) -> str:
 def _timing_section(content: ReportContent) -> str:
     rec = content.reconciliation
     t, d = rec.timing, rec.data
-    pairs = [("design", t["design"]), ("waves", ", ".join(f"{w:g}" for w in t["waves"])),
-             ("wave grid from", t["grid_source"]),
-             ("rounding onto waves", f"up to {number(t['displacement']['max'])}, "
-                                     f"{number(t['displacement']['mean'])} on average"),
-             ("persons", f"{d['persons_used']} used of {d['persons_read']} read"),
-             ("occasions", f"{d['occasions_used']} used of {d['occasions_read']} read"),
-             ("estimation", f"{d['method']}, {d['missing']}"),
-             ("fitting time", f"semopy {d['seconds']['sem']:.2f} s, statsmodels {d['seconds']['mixed']:.2f} s")]
+    pairs = [("design", t.get("design")), ("waves", ", ".join(f"{w:g}" for w in t.get("waves", ()))),
+             ("wave grid from", t.get("grid_source"))]
+    if "displacement" in t:
+        pairs.append(("rounding onto waves", f"up to {number(t['displacement']['max'])}, "
+                                             f"{number(t['displacement']['mean'])} on average"))
+    pairs += [("persons", f"{d.get('persons_used')} used of {d.get('persons_read')} read"),
+              ("occasions", f"{d.get('occasions_used')} used of {d.get('occasions_read')} read"),
+              ("estimation", f"{d.get('method')}, {d.get('missing')}")]
+    if "seconds" in d:
+        pairs.append(("fitting time", f"semopy {d['seconds']['sem']:.2f} s, statsmodels {d['seconds']['mixed']:.2f} s"))
     pairs += [(f"predictor {p['key']}", f"1 when {p['column']} is {p['level']!r}, 0 at the reference level "
-                                        f"{p['reference']!r}") for p in d["predictors"] if p["level"] is not None]
+                                        f"{p['reference']!r}") for p in d.get("predictors", ()) if p.get("level")]
     pairs += [(f"referee check ({c['library']}, {c['criterion']})",
                f"library {c['library_value']:.6f}, referee {c['referee_value']:.6f}") for c in rec.referee_checks]
     return f'<section id="timing">\n<h2>Timing and data</h2>\n{_dl(pairs)}</section>\n'
@@ -154,15 +162,19 @@ def figure_source(content: ReportContent, show_se: bool = True) -> str:
 
 def report_files(content: ReportContent) -> dict[str, bytes]:
     """Every output file by name: the page, the figures (with their DOT), the tables, the JSON result."""
-    files = diagram.figure_files(figure_source(content), "path-diagram")
-    files.update(trajectory.trajectory_files(content.trajectories))
-    mixed = tables.mixed_grids(content.mixed)
-    correspondence = tables.correspondence_grid(content.correspondence)
-    texts = {"mixed-model.md": tables.markdown(mixed), "mixed-model.tex": tables.latex(mixed),
-             "correspondence.md": tables.markdown((correspondence,)),
-             "correspondence.tex": tables.latex((correspondence,)),
+    files: dict[str, bytes] = {}
+    grids = (tables.correspondence_grid(content.correspondence),)
+    texts = {"correspondence.md": tables.markdown(grids), "correspondence.tex": tables.latex(grids),
              "result.json": to_json(content.reconciliation)}
-    texts.update({f"{grid.name}.csv": tables.csv_text(grid) for grid in (*mixed, correspondence)})
+    if content.graph is not None:
+        files.update(diagram.figure_files(figure_source(content), "path-diagram"))
+    if content.trajectories is not None:
+        files.update(trajectory.trajectory_files(content.trajectories))
+    if content.mixed is not None:
+        mixed = tables.mixed_grids(content.mixed)
+        texts.update({"mixed-model.md": tables.markdown(mixed), "mixed-model.tex": tables.latex(mixed)})
+        grids = (*mixed, *grids)
+    texts.update({f"{grid.name}.csv": tables.csv_text(grid) for grid in grids})
     files.update({name: text.encode("utf-8") for name, text in texts.items()})
     files["report.html"] = report_html(content, files).encode("utf-8")
     return dict(sorted(files.items()))
