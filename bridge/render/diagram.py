@@ -155,11 +155,13 @@ def find_renderer() -> Renderer:
         return Renderer(Path(system), pdf=True)
     name = "graphviz-pure.exe" if sys.platform == "win32" else "graphviz-pure"
     beside = Path(sys.executable).parent / name
-    found = beside if beside.exists() else (shutil.which("graphviz-pure") and Path(shutil.which("graphviz-pure")))
-    if not found:
-        raise RenderError("no Graphviz program found: reinstall sembridge (it brings graphviz-pure) or install "
-                          "Graphviz so that `dot` is on PATH")
-    return Renderer(Path(found), pdf=False)
+    if beside.exists():
+        return Renderer(beside, pdf=False)
+    on_path = shutil.which("graphviz-pure")
+    if on_path:
+        return Renderer(Path(on_path), pdf=False)
+    raise RenderError("no Graphviz program found: reinstall sembridge (it brings graphviz-pure) or install "
+                      "Graphviz so that `dot` is on PATH")
 
 
 def render(source: str, fmt: str, renderer: Renderer | None = None) -> bytes:
