@@ -10,7 +10,7 @@ import traceback
 import typer
 
 from ..errors import SembridgeError
-from . import compile, demo, draw, reconcile, report  # noqa: F401  (registers the commands)
+from . import compile, demo, draw, reconcile, report, simulate, timing  # noqa: F401  (registers the commands)
 from .app import app
 
 __all__ = ["app", "main"]

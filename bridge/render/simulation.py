@@ -5,6 +5,7 @@ import math
 from pathlib import Path
 
 from rich.table import Table
+from rich.text import Text
 
 from ..timing.summary import SimulationSummary
 
@@ -44,11 +45,12 @@ def markdown_table(summary: SimulationSummary) -> str:
 def terminal_table(summary: SimulationSummary) -> Table:
     """The summary for the terminal (rich)."""
     table = Table(title=f"Monte Carlo study: {summary.description} under {summary.population}",
-                  title_justify="left", header_style="bold", caption=verdict_line(summary), caption_justify="left")
+                  title_justify="left", header_style="bold", caption=Text(verdict_line(summary)),
+                  caption_justify="left")
     for i, heading in enumerate(_COLUMNS):
         table.add_column(heading, justify="left" if i < 2 else "right", no_wrap=i == 0)
     for row in _cells(summary):
-        table.add_row(*row)
+        table.add_row(*(Text(cell) for cell in row))
     return table
 
 

@@ -96,6 +96,11 @@ class RoundingExperiment:
     def keys(self) -> tuple[str, ...]:
         return tuple(self.exact)
 
+    def in_standard_errors(self, key: str) -> list[float]:
+        """The deviation of one quantity at every level, in units of the exact-time standard error."""
+        se = self.exact_se.get(key, float("nan"))
+        return [f.deviation[key] / se if se and np.isfinite(se) else float("nan") for f in self.fits]
+
     def to_dict(self) -> dict:
         """Plain data for JSON (docs/timing-lab.md)."""
         return {"description": self.description, "exact": self.exact, "exact_se": self.exact_se,
@@ -140,11 +145,20 @@ def grid_at(level: int, design: tuple[float, ...], person: np.ndarray, times: np
 
 
 @contextmanager
-def _library_log_muted():
-    """semopy logs a warning on the root logger whenever its start covariance is not positive definite."""
+def _fitting_quietly():
+    """One BLAS thread and no library log lines while fitting.
+
+    semopy's full-information objective inverts one small matrix per missing-data pattern
+    and iteration; a multi-threaded BLAS adds overhead to each (tens of times slower on a
+    busy machine). semopy also logs a warning on the root logger whenever its start
+    covariance is not positive definite, which fine grids always cause.
+    """
+    from threadpoolctl import threadpool_limits
+
     logging.disable(logging.WARNING)
     try:
-        yield
+        with threadpool_limits(limits=1):
+            yield
     finally:
         logging.disable(logging.NOTSET)
 
@@ -156,7 +170,7 @@ def _fit(description: Description, frame, grid: Grid, progress: Progress):
     desc = replace(description, estimation=replace(description.estimation, waves=grid.waves))
     shaped = shape_frame(desc, frame)
     with progress(f"level {grid.level}: {grid.columns} wide columns, {grid.patterns} missing-data patterns"):
-        with _library_log_muted():
+        with _fitting_quietly():
             evaluation = evaluate(shaped, Plan.from_description(desc))
     return evaluation, time.perf_counter() - began
 

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..data.reading import read_table
-from ..data.timing import Design, Timing, classify
+from ..data.timing import Timing, classify
 from ..errors import DataError
 from .advice import Recommendation, recommend
 

@@ -27,6 +27,7 @@ from .population import Population, simulation_description
 Z_95 = 1.959963984540054  # standard normal 97.5% quantile: the Wald interval is estimate +- Z_95 x SE
 FRAMEWORKS = ("sem", "mixed")
 OnDone = Callable[[int, int], None]
+SCHEDULER_TIMEOUT = "20s"  # how long to wait for a Dask scheduler before giving up
 
 
 @dataclass(frozen=True)
@@ -138,7 +139,7 @@ def _dask(tasks: list[Task], scheduler, on_done: OnDone) -> Iterable[Replication
     from dask.distributed import as_completed as dask_completed
 
     try:
-        client = Client(scheduler, timeout="20s")
+        client = Client(scheduler, timeout=SCHEDULER_TIMEOUT)
     except (OSError, TimeoutError, ValueError) as exc:
         raise SembridgeError(f"cannot reach the Dask scheduler at {scheduler} ({exc.__class__.__name__})") from exc
     with client:

@@ -1,0 +1,104 @@
+"""`sembridge timing DATA` (the timing summary) and `sembridge rounding SPEC` (the rounding experiment)."""
+from __future__ import annotations
+
+import json
+from contextlib import contextmanager
+from pathlib import Path
+
+import typer
+
+from ..errors import DataError
+from .app import QUIET, SPEC, app, fail, guarded, progress, stdout_console, write_text
+
+JSON = typer.Option(None, "--json", help="Also write the result as JSON to this file ('-' for stdout only).")
+FIGURE = typer.Option(None, "--figure", help="Also draw the figure into this PNG file.")
+
+
+def parse_waves(text: str | None) -> tuple[float, ...] | None:
+    """`0,6,12` -> (0.0, 6.0, 12.0); a value that is not a number is bad input."""
+    if text is None:
+        return None
+    values = []
+    for part in text.replace(" ", "").split(","):
+        try:
+            values.append(float(part))
+        except ValueError:
+            raise DataError(f"--waves: {part!r} is not a number (give times separated by commas, e.g. 0,6,12)") \
+                from None
+    return tuple(values)
+
+
+def refuse_inputs(outputs: list[Path | None], inputs: list[Path]) -> None:
+    """Never write over an input file."""
+    for out in outputs:
+        if out is not None and str(out) != "-" and any(out.resolve() == i.resolve() for i in inputs):
+            fail(f"{out} is an input file; choose another output name")
+
+
+@contextmanager
+def writing(path: Path):
+    """Turn a failed write into one line and exit code 2."""
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        yield
+    except OSError as exc:
+        fail(f"cannot write {path} ({exc.strerror or exc})")
+
+
+def _emit(payload: dict, json_file: Path | None, view) -> None:
+    text = json.dumps(payload, indent=2, allow_nan=True) + "\n"
+    if json_file is not None and str(json_file) == "-":
+        typer.echo(text, nl=False)
+        return
+    stdout_console().print(view)
+    if json_file is not None:
+        write_text(json_file, text)
+
+
+@app.command("timing")
+def timing_command(
+    data: Path = typer.Argument(..., help="A long-layout data file (.csv, .tsv or .parquet), one row per occasion."),
+    person: str = typer.Option(..., "--person", help="The column that identifies persons."),
+    time: str = typer.Option(..., "--time", help="The column with each occasion's time."),
+    waves: str = typer.Option(None, "--waves", help="The planned wave times, comma-separated (e.g. 0,6,12,18,24); "
+                                                    "without it the grid is inferred as the reconciler does."),
+    json_file: Path = JSON,
+    figure: Path = FIGURE,
+) -> None:
+    """Classify a design's timing, show the time spread per wave and what rounding costs, and recommend a form."""
+    from ..render import timing as render
+    from ..timing.inspect import inspect_file
+
+    refuse_inputs([json_file, figure], [data])
+    with guarded():
+        report = inspect_file(data, person, time, parse_waves(waves))
+    _emit(report.to_dict(), json_file, render.timing_view(report))
+    if figure is not None:
+        with writing(figure):
+            render.timing_figure(report, figure)
+
+
+@app.command("rounding")
+def rounding_command(
+    spec: Path = SPEC,
+    max_columns: int = typer.Option(50, "--max-columns", min=2, help="Stop before a grid with more wide columns."),
+    max_patterns: int = typer.Option(1000, "--max-patterns", min=1,
+                                     help="Stop before a grid with more missing-data patterns."),
+    max_levels: int = typer.Option(5, "--max-levels", min=0, help="The finest level to try (spacing / 2^level)."),
+    json_file: Path = JSON,
+    figure: Path = FIGURE,
+    quiet: bool = QUIET,
+) -> None:
+    """Fit the wide form on ever finer wave grids and show how far each quantity is from the exact-time model."""
+    from ..render import timing as render
+    from ..timing.experiment import Limits, run_experiment
+
+    refuse_inputs([json_file, figure], [spec])
+    json_only = json_file is not None and str(json_file) == "-"
+    with guarded():
+        experiment = run_experiment(spec, Limits(max_columns, max_patterns, max_levels),
+                                    progress=progress(quiet or json_only))
+    _emit(experiment.to_dict(), json_file, render.experiment_view(experiment))
+    if figure is not None:
+        with writing(figure):
+            render.experiment_figure(experiment, figure)

@@ -1,0 +1,151 @@
+"""The timing report and the rounding experiment as terminal tables and figures. Pure: computes nothing."""
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+from rich.console import Group
+from rich.table import Table
+from rich.text import Text
+
+from ..timing.experiment import RoundingExperiment
+from ..timing.inspect import TimingReport
+
+SHOWN_WAVES = 12   # a longer spread table shows its first and last rows only (all are in the JSON)
+
+
+def _fmt(value: float, digits: int = 4) -> str:
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    return f"{value:.{digits}g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.2e}"
+
+
+def _spread_table(report: TimingReport) -> Table:
+    table = Table(title="Times assigned to each wave", title_justify="left", header_style="bold")
+    for heading in ("wave", "n", "min", "25%", "median", "75%", "max", "SD", "mean move", "max move"):
+        table.add_column(heading, justify="right", no_wrap=True)
+    rows = list(report.spread)
+    hidden = len(rows) - SHOWN_WAVES
+    if hidden > 0:
+        rows = rows[:SHOWN_WAVES // 2] + [None] + rows[-SHOWN_WAVES // 2:]
+    for s in rows:
+        if s is None:
+            table.add_row(Text(f"... {hidden} more", style="dim"), *[""] * 9)
+            continue
+        table.add_row(_fmt(s.wave), str(s.n), *(_fmt(v) for v in (s.minimum, s.q1, s.median, s.q3, s.maximum, s.sd,
+                                                                   s.displacement_mean, s.displacement_max)))
+    return table
+
+
+def timing_lines(report: TimingReport) -> list[str]:
+    """The report's headline facts, one per line."""
+    t, per = report.timing, report.occasions_per_person
+    waves = ", ".join(f"{w:g}" for w in t.waves[:10]) + (f", ... ({len(t.waves)} waves)" if len(t.waves) > 10 else "")
+    median, p90, top = report.displacement_quantiles
+    return [f"Data: {report.source} (person '{report.person}', time '{report.time}')",
+            f"Design: {t.design.value}",
+            f"{t.n_persons} persons, {t.n_occasions} occasions ({per[0]} to {per[2]} per person, median {per[1]:g}), "
+            f"{t.n_distinct_times} distinct times",
+            f"Wave grid ({t.grid_source.value}): {waves}",
+            f"Rounding onto the grid moves a time by {t.displacement_mean:.3g} on average (median {median:.3g}, "
+            f"90% within {p90:.3g}, at most {top:.3g}); median gap between waves {report.median_gap:g}",
+            f"Wide form on this grid: {len(t.waves)} columns, {report.grid_patterns} missing-data patterns, "
+            f"{report.complete_persons} persons seen at every wave",
+            f"Wide form on the exact times: {report.exact_columns} columns, {report.exact_patterns} missing-data "
+            "patterns"]
+
+
+def timing_view(report: TimingReport) -> Group:
+    """Everything `sembridge timing` prints."""
+    r = report.recommendation
+    advice = Text.assemble(("Recommendation: ", "bold"), (r.framework, "bold green"), f"\n{r.reason}\n",
+                           ("Cost: ", "bold"), r.cost)
+    return Group(*(Text(line) for line in timing_lines(report)), Text(""), _spread_table(report), advice)
+
+
+def timing_figure(report: TimingReport, path: Path) -> None:
+    """Histogram of the occasion times coloured by the wave they are rounded to, with the grid marked."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    edges, counts = report.histogram.edges, report.histogram.counts
+    lefts, widths = edges[:-1], [b - a for a, b in zip(edges[:-1], edges[1:])]
+    fig, (top, bottom) = plt.subplots(2, 1, figsize=(9, 5.5), sharex=True, height_ratios=(3, 2))
+    base = [0] * len(lefts)
+    for k, row in enumerate(counts):
+        top.bar(lefts, row, width=widths, bottom=base, align="edge", color=f"C{k % 10}", linewidth=0)
+        base = [b + c for b, c in zip(base, row)]
+    for s in report.spread:
+        top.axvline(s.wave, color="0.2", lw=0.8, ls="--")
+        if s.n:
+            bottom.plot([s.minimum, s.maximum], [s.wave, s.wave], color="0.6", lw=1)
+            bottom.plot([s.q1, s.q3], [s.wave, s.wave], color="0.2", lw=5, solid_capstyle="butt")
+            bottom.plot([s.wave], [s.wave], "k|", ms=12)
+    top.set_ylabel("occasions")
+    top.set_title(f"{report.source}: {report.timing.design.value}; colour = wave the time is rounded to",
+                  fontsize="medium")
+    bottom.set_ylabel("wave")
+    bottom.set_xlabel(f"time ('{report.time}'); bottom: range and middle half of the times of each wave")
+    fig.tight_layout()
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+
+
+def _grid_table(experiment: RoundingExperiment) -> Table:
+    table = Table(title="Wave grids (level 0 = the design's waves; each level halves the spacing)",
+                  title_justify="left", header_style="bold")
+    for heading in ("level", "spacing", "wide columns", "patterns", "mean move", "max move", "SEM fit s",
+                    "all s", "note"):
+        table.add_column(heading, justify="right" if heading != "note" else "left", no_wrap=True)
+    for f in experiment.fits:
+        g = f.grid
+        note = f"same columns as level {f.same_as}" if f.same_as is not None else (
+            f"{f.refits} refit(s) ordered by the referee" if f.refits else "")
+        table.add_row(str(g.level), _fmt(g.step), str(g.columns), str(g.patterns), _fmt(g.displacement_mean),
+                      _fmt(g.displacement_max), f"{f.seconds_sem:.2f}", f"{f.seconds_total:.2f}", note)
+    return table
+
+
+def _deviation_table(experiment: RoundingExperiment) -> Table:
+    table = Table(title="Wide form on each grid minus the exact-time mixed model", title_justify="left",
+                  header_style="bold")
+    table.add_column("quantity", no_wrap=True)
+    table.add_column("exact-time value", justify="right")
+    for f in experiment.fits:
+        table.add_column(f"level {f.grid.level}", justify="right", no_wrap=True)
+    for key in experiment.keys:
+        table.add_row(Text(key), _fmt(experiment.exact[key]), *(_fmt(f.deviation.get(key)) for f in experiment.fits))
+    return table
+
+
+def experiment_view(experiment: RoundingExperiment) -> Group:
+    """Everything `sembridge rounding` prints."""
+    return Group(Text(f"Description: {experiment.description}"), _grid_table(experiment),
+                 _deviation_table(experiment),
+                 Text(f"Rule: {experiment.rule}. Stopped: {experiment.stopped}."))
+
+
+def experiment_figure(experiment: RoundingExperiment, path: Path) -> None:
+    """Each quantity's deviation, in exact-time standard errors, against the mean rounding displacement."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    moves = [f.grid.displacement_mean for f in experiment.fits]
+    fig, ax = plt.subplots(figsize=(8, 4.5))
+    for k, key in enumerate(experiment.keys):
+        ax.plot(moves, experiment.in_standard_errors(key), marker="o", color=f"C{k % 10}", label=key)
+    ax.axhline(0, color="0.3", lw=0.8)
+    for f, x in zip(experiment.fits, moves):
+        ax.annotate(f"level {f.grid.level}\n{f.grid.columns} col.", (x, 0), textcoords="offset points",
+                    xytext=(0, -28), ha="center", fontsize="x-small", color="0.35")
+    ax.set_xlabel("mean distance a time is moved by rounding (finer grids to the left)")
+    ax.set_ylabel("wide form - exact mixed model\n(in exact-time standard errors)")
+    ax.set_title(f"{experiment.description}: rounding experiment", fontsize="medium")
+    ax.legend(fontsize="x-small", loc="best")
+    fig.tight_layout()
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
