@@ -81,6 +81,12 @@ def _check(values: np.ndarray, names: tuple[str, ...], waves: np.ndarray, label:
     if len(waves) < 3:
         raise DataError(f"{label}: a cross-lagged model needs at least 3 waves, found {len(waves)}")
     observed = np.isfinite(values)
+    seen = observed.any(axis=0)  # (waves, outcomes): observed for anyone at that wave
+    if not seen.all(axis=1).any():
+        schedules = "; ".join(f"'{name}' at waves " + ", ".join(f"{w:g}" for w in waves[seen[:, k]])
+                              for k, name in enumerate(names))
+        raise DataError(f"{label}: the waves of the outcomes do not overlap ({schedules}); a cross-lagged "
+                        "model needs the outcomes measured at the same waves")
     for k, name in enumerate(names):
         if np.nanstd(values[:, :, k]) == 0:
             raise DataError(f"{label}: outcome '{name}' is constant; there is nothing to model")

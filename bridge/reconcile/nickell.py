@@ -1,6 +1,9 @@
 """Nickell's (1981) asymptotic bias of the within (person-mean-centred) estimator of an autoregressive effect."""
 from __future__ import annotations
 
+import math
+from fractions import Fraction
+
 
 def nickell_bias(r: float, periods: int) -> float:
     """plim(r_hat - r) as N -> infinity with `periods` time points in the lagged regression.
@@ -11,5 +14,10 @@ def nickell_bias(r: float, periods: int) -> float:
     if periods < 2:
         raise ValueError("the within estimator needs at least 2 periods")
     T = periods
-    a = 1.0 - (1.0 - r ** T) / (T * (1.0 - r)) if r != 1 else 0.0
-    return -((1.0 + r) / (T - 1)) * a / (1.0 - 2.0 * r * a / ((1.0 - r) * (T - 1)))
+    if not math.isfinite(r):
+        return float("nan")
+    if r == 1:
+        return -3.0 / (T + 1)  # the limit as r -> 1
+    q = Fraction(r)  # exact arithmetic: near r = 1 both factors shrink to zero together
+    a = 1 - (1 - q ** T) / (T * (1 - q))
+    return float(-((1 + q) / (T - 1)) * a / (1 - 2 * q * a / ((1 - q) * (T - 1))))
