@@ -320,3 +320,18 @@ def test_simulate_unreachable_scheduler_is_bad_input(tmp_path, monkeypatch):
     result = runner.invoke(app, ["simulate", str(spec), "--population", str(population), "--replications", "1",
                                  "--scheduler", "tcp://127.0.0.1:9", "--out", str(tmp_path / "o")])
     assert result.exit_code == 2 and "cannot reach the Dask scheduler at tcp://127.0.0.1:9" in result.stderr
+
+
+def test_tutorial_shows_the_demo_population_file():
+    page = (ROOT / "docs" / "timing-lab.md").read_text(encoding="utf-8")
+    assert GROWTH_POPULATION.read_text(encoding="utf-8").rstrip() in page
+
+
+@pytest.mark.parametrize("spec,message", [
+    (ROOT / "bridge" / "demo" / "weekly_practice.yaml", "the rounding experiment is for growth models"),
+    (Path("missing.yaml"), "missing.yaml"),
+])
+def test_rounding_bad_input_is_one_line_and_exit_2(spec, message):
+    result = runner.invoke(app, ["rounding", str(spec), "--quiet"])
+    assert result.exit_code == 2
+    assert len(result.stderr.strip().splitlines()) == 1 and message in result.stderr

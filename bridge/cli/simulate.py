@@ -10,7 +10,7 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
 from .app import SPEC, app, guarded, stdout_console, write_text
-from .timing import refuse_inputs, writing
+from .timing import json_safe, refuse_inputs, writing
 
 OUTPUTS = ("replications.parquet", "replications.csv", "summary.md", "summary.csv", "summary.json", "summary.png")
 
@@ -69,7 +69,7 @@ def simulate_command(
         frame.to_csv(raw, index=False) if csv else frame.to_parquet(raw, index=False)
     write_text(out / "summary.md", render.markdown_table(summary) + "\n")
     write_text(out / "summary.csv", summary_frame(summary).to_csv(index=False))
-    write_text(out / "summary.json", json.dumps(summary.to_dict(), indent=2) + "\n")
+    write_text(out / "summary.json", json.dumps(json_safe(summary.to_dict()), indent=2, allow_nan=False) + "\n")
     with writing(out / "summary.png"):
         render.figure(summary, out / "summary.png")
     stdout_console().print(render.terminal_table(summary))

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import math
 from contextlib import contextmanager
 from pathlib import Path
 
@@ -45,8 +46,19 @@ def writing(path: Path):
         fail(f"cannot write {path} ({exc.strerror or exc})")
 
 
+def json_safe(value):
+    """JSON has no NaN or infinity: such numbers (an empty wave's spread, say) become null."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_safe(v) for v in value]
+    return value
+
+
 def _emit(payload: dict, json_file: Path | None, view) -> None:
-    text = json.dumps(payload, indent=2, allow_nan=True) + "\n"
+    text = json.dumps(json_safe(payload), indent=2, allow_nan=False) + "\n"
     if json_file is not None and str(json_file) == "-":
         typer.echo(text, nl=False)
         return

@@ -43,14 +43,21 @@ def markdown_table(summary: SimulationSummary) -> str:
 
 
 def terminal_table(summary: SimulationSummary) -> Table:
-    """The summary for the terminal (rich)."""
-    table = Table(title=f"Monte Carlo study: {summary.description} under {summary.population}",
-                  title_justify="left", header_style="bold", caption=Text(verdict_line(summary)),
-                  caption_justify="left")
-    for i, heading in enumerate(_COLUMNS):
-        table.add_column(heading, justify="left" if i < 2 else "right", no_wrap=i == 0)
-    for row in _cells(summary):
-        table.add_row(*(Text(cell) for cell in row))
+    """The summary for the terminal (rich): bias, RMSE and coverage of both forms side by side."""
+    caption = (f"{verdict_line(summary)}. Converged: wide form {summary.convergence['sem']:.0%}, long form "
+               f"{summary.convergence['mixed']:.0%}. * coverage outside its binomial band "
+               "(summary.md has the bands, Monte Carlo SEs and mean SEs).")
+    table = Table(title=Text(f"Monte Carlo study: {summary.description} under {summary.population}"),
+                  title_justify="left", header_style="bold", caption=Text(caption), caption_justify="left")
+    table.add_column("quantity", no_wrap=True)
+    for heading in ("truth", "bias\nSEM", "bias\nmixed", "RMSE\nSEM", "RMSE\nmixed", "coverage\nSEM",
+                    "coverage\nmixed", "agreed"):
+        table.add_column(heading, justify="right", no_wrap=True)
+    for key in summary.keys:
+        sem, mixed = summary.row(key, "sem"), summary.row(key, "mixed")
+        cover = [f"{q.coverage:.3f}" + ("" if q.within_band else "*") for q in (sem, mixed)]
+        table.add_row(Text(key), _fmt(sem.truth), _fmt(sem.bias, 3), _fmt(mixed.bias, 3), _fmt(sem.rmse, 3),
+                      _fmt(mixed.rmse, 3), *cover, f"{sem.agreement:.0%}")
     return table
 
 
@@ -75,8 +82,8 @@ def figure(summary: SimulationSummary, path: Path) -> None:
     right.axvline(0.95, color="0.4", lw=0.8)
     left.set_yticks(range(len(keys)), keys)
     left.invert_yaxis()
-    left.set_xlabel("bias (relative to the true value; absolute where the truth is 0), +-2 MC SE")
-    right.set_xlabel("95% interval coverage (grey: binomial band)")
+    left.set_xlabel("bias / |true value|, +-2 Monte Carlo SE\n(plain bias where the true value is 0)")
+    right.set_xlabel("95% interval coverage\n(grey: where 95% of studies would fall)")
     left.legend(loc="best", fontsize="small")
     fig.suptitle(f"{summary.replications} replications, seed {summary.seed}", fontsize="medium")
     fig.tight_layout()

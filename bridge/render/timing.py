@@ -128,21 +128,20 @@ def experiment_view(experiment: RoundingExperiment) -> Group:
 
 
 def experiment_figure(experiment: RoundingExperiment, path: Path) -> None:
-    """Each quantity's deviation, in exact-time standard errors, against the mean rounding displacement."""
+    """Each quantity's deviation, in exact-time standard errors, at every level of the experiment."""
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    moves = [f.grid.displacement_mean for f in experiment.fits]
-    fig, ax = plt.subplots(figsize=(8, 4.5))
+    levels = [f.grid.level for f in experiment.fits]
+    fig, ax = plt.subplots(figsize=(8, 4.8))
     for k, key in enumerate(experiment.keys):
-        ax.plot(moves, experiment.in_standard_errors(key), marker="o", color=f"C{k % 10}", label=key)
+        ax.plot(levels, experiment.in_standard_errors(key), marker="o", color=f"C{k % 10}", label=key)
     ax.axhline(0, color="0.3", lw=0.8)
-    for f, x in zip(experiment.fits, moves):
-        ax.annotate(f"level {f.grid.level}\n{f.grid.columns} col.", (x, 0), textcoords="offset points",
-                    xytext=(0, -28), ha="center", fontsize="x-small", color="0.35")
-    ax.set_xlabel("mean distance a time is moved by rounding (finer grids to the left)")
+    ax.set_xticks(levels, [f"level {f.grid.level}\n{f.grid.columns} columns\nmoved {f.grid.displacement_mean:.3g}"
+                           for f in experiment.fits], fontsize="small")
+    ax.set_xlabel("wave grid (finer to the right); moved = mean distance rounding moves a time")
     ax.set_ylabel("wide form - exact mixed model\n(in exact-time standard errors)")
     ax.set_title(f"{experiment.description}: rounding experiment", fontsize="medium")
     ax.legend(fontsize="x-small", loc="best")

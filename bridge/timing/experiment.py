@@ -29,7 +29,9 @@ from ..data import ShapedData, shape_frame
 from ..data.reading import read_table
 from ..data.timing import nearest_wave
 from ..progress import Progress, quiet
+from ..errors import DescriptionError
 from ..spec import Description, load
+from ..spec.vocabulary import Kind
 from .inspect import count_patterns
 
 MAX_COLUMNS = 50
@@ -202,6 +204,9 @@ def run_experiment(description: Description | str, limits: Limits = Limits(), fr
                    progress: Progress = quiet) -> RoundingExperiment:
     """The rounding experiment on a description's data (or on `frame`, laid out as the description says)."""
     description = description if isinstance(description, Description) else load(description)
+    if description.model.kind is not Kind.GROWTH:
+        raise DescriptionError(f"{description.label}: the rounding experiment is for growth models; "
+                               f"model.kind is {description.model.kind.value}")
     frame = read_table(description.data.path) if frame is None else frame
     base = shape_frame(description, frame)
     design = base.timing.waves

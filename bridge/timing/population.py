@@ -29,6 +29,7 @@ import yaml
 from ..errors import DescriptionError
 from ..simulate.growth import GrowthTruth
 from ..spec import Description, Layout
+from ..spec.vocabulary import Kind
 
 _DESIGN = {"persons", "waves", "missing_rate", "jitter", "predictors"}
 
@@ -150,12 +151,14 @@ def load_population(path: str | Path, desc: Description) -> Population:
     design = tree["design"]
     for key in set(design) - _DESIGN:
         problems.add(f"design.{key}", f"unknown key; expected one of {', '.join(sorted(_DESIGN))}")
+    if desc.model.kind is not Kind.GROWTH:
+        problems.add("description", f"simulation draws growth data; the description's model.kind is "
+                                    f"{desc.model.kind.value}")
     if desc.data.layout is not Layout.LONG:
         problems.add("description", "simulation needs a long-layout description (data.layout: long)")
-    codings = (desc.model.time_origin, desc.sem_form.time_origin, desc.sem_form.time_scale,
-               desc.mixed_form.time_origin, desc.mixed_form.time_scale)
-    if any(c not in (None, 0.0) for c in codings[:2] + codings[3:4]) or any(c not in (None, 1.0) for c in
-                                                                           codings[2::2]):
+    origins = (desc.model.time_origin, desc.sem_form.time_origin, desc.mixed_form.time_origin)
+    scales = (desc.sem_form.time_scale, desc.mixed_form.time_scale)
+    if any(o not in (None, 0.0) for o in origins) or any(s not in (None, 1.0) for s in scales):
         problems.add("description", "the true values refer to time as drawn; use time_origin 0 and no form "
                                     "time coding")
     drawn = design.get("predictors") or {}

@@ -80,7 +80,12 @@ class SimulationSummary:
     seed: int
     quantities: tuple[QuantitySummary, ...]
     verdicts: dict[str, int]
+    convergence: dict[str, float]   # per framework: share of replications whose fit converged
     seconds: float          # summed over replications (not wall time)
+
+    @property
+    def keys(self) -> tuple[str, ...]:
+        return tuple(dict.fromkeys(q.quantity for q in self.quantities))
 
     def row(self, quantity: str, framework: str) -> QuantitySummary:
         return next(q for q in self.quantities if q.quantity == quantity and q.framework == framework)
@@ -134,8 +139,9 @@ def summarise(replications: tuple[Replication, ...], description: str, populatio
             if len(group):
                 rows.append(QuantitySummary(quantity=quantity, framework=framework, **_summarise_one(group, total)))
     verdicts = {v: sum(r.verdict == v for r in replications) for v in VERDICTS}
+    convergence = {f: min((q.convergence for q in rows if q.framework == f), default=0.0) for f in FRAMEWORKS}
     return SimulationSummary(description=description, population=population, replications=total, seed=seed,
-                             quantities=tuple(rows), verdicts=verdicts,
+                             quantities=tuple(rows), verdicts=verdicts, convergence=convergence,
                              seconds=float(sum(r.seconds for r in replications)))
 
 
