@@ -26,7 +26,7 @@ from bridge.render import simulation as render
 from bridge.spec import load
 from bridge.timing.montecarlo import run_replications
 from bridge.timing.population import load_population
-from bridge.timing.summary import replications_frame, summarise
+from bridge.timing.summary import replications_frame, summarise, summary_frame
 
 BAND = (0.91, 0.98)
 DESCRIPTION = {"data": {"path": "simulated.csv", "layout": "long", "person": "person", "time": "time",
@@ -79,6 +79,8 @@ def main() -> int:
         args.out.mkdir(parents=True, exist_ok=True)
         replications_frame(reps).to_parquet(args.out / "replications.parquet", index=False)
         (args.out / "summary.md").write_text(render.markdown_table(summary) + "\n", encoding="utf-8")
+        summary_frame(summary).to_csv(args.out / "summary.csv", index=False)
+        render.figure(summary, args.out / "summary.png")
     return 0 if passes(summary) else 1
 
 
