@@ -335,3 +335,46 @@ def test_rounding_bad_input_is_one_line_and_exit_2(spec, message):
     result = runner.invoke(app, ["rounding", str(spec), "--quiet"])
     assert result.exit_code == 2
     assert len(result.stderr.strip().splitlines()) == 1 and message in result.stderr
+
+
+def test_simulate_shows_a_progress_bar_on_a_terminal(tmp_path):
+    import os
+    import pty
+    import select
+    import subprocess
+    import sys
+
+    spec = spec_file(tmp_path)
+    population = population_file(tmp_path, {**SMALL_DESIGN, "persons": 30, "jitter": 0.0}, TRUTH)
+    master, slave = pty.openpty()
+    proc = subprocess.Popen([sys.executable, "-m", "bridge.cli", "simulate", str(spec), "--population",
+                             str(population), "--replications", "2", "--out", str(tmp_path / "o")],
+                            stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=slave, cwd=tmp_path,
+                            env={**os.environ, "PYTHONPATH": str(ROOT), "COLUMNS": "120"})
+    os.close(slave)
+    chunks = []
+    while True:
+        ready, _, _ = select.select([master], [], [], 0.5)
+        if ready:
+            try:
+                data = os.read(master, 4096)
+            except OSError:
+                break
+            if not data:
+                break
+            chunks.append(data)
+        elif proc.poll() is not None:
+            break
+    stdout, _ = proc.communicate(timeout=300)
+    os.close(master)
+    shown = b"".join(chunks).decode("utf-8", "replace")
+    assert proc.returncode == 0
+    assert "replications" in shown and "2/2" in shown and "left" in shown
+    assert "2/2" not in stdout.decode()  # results on standard output, progress on the terminal's stderr
+
+
+def test_experiment_uses_one_residual_variance(tmp_path):
+    frame = simulate_growth(GrowthTruth(**{**STEEP, "n_persons": 40}, jitter=0.2), 5)
+    description = {**DESCRIPTION, "model": {"random": ["intercept", "slope"], "residuals": "per-wave"}}
+    experiment = run_experiment(load(spec_file(tmp_path, description)), Limits(max_levels=0), frame=frame)
+    assert "var.residual" in experiment.exact and not any(k.startswith("var.residual.") for k in experiment.keys)

@@ -9,7 +9,9 @@ moves no occasion). Each level is fitted by the pipeline itself: the description
 `bridge.reconcile.evaluation.evaluate` (both fits, the referee's checks and refits). The
 long-form mixed model always uses the exact times, so its level-0 solution is the reference.
 A level whose columns are those of the level before (no occasion moved) repeats that
-level's fit instead of refitting it.
+level's fit instead of refitting it. The wide form keeps one residual variance on every grid
+(`residuals: per-wave` is set to `equal`), as the exact-time mixed model has: a variance
+per column would change meaning from grid to grid.
 
 Stopping rule: refine while the next grid has at most `max_columns` wide columns, at most
 `max_patterns` missing-data patterns, puts no two occasions of one person on one column,
@@ -30,7 +32,7 @@ from ..data.reading import read_table
 from ..data.timing import nearest_wave
 from ..progress import Progress, quiet
 from ..errors import DescriptionError
-from ..spec import Description, load
+from ..spec import Description, Residuals, load
 from ..spec.vocabulary import Kind
 from .inspect import count_patterns
 
@@ -207,6 +209,8 @@ def run_experiment(description: Description | str, limits: Limits = Limits(), fr
     if description.model.kind is not Kind.GROWTH:
         raise DescriptionError(f"{description.label}: the rounding experiment is for growth models; "
                                f"model.kind is {description.model.kind.value}")
+    if description.model.residuals is not Residuals.EQUAL:  # one variance per column cannot follow the grid
+        description = replace(description, model=replace(description.model, residuals=Residuals.EQUAL))
     frame = read_table(description.data.path) if frame is None else frame
     base = shape_frame(description, frame)
     design = base.timing.waves
