@@ -11,6 +11,8 @@ whose nodes are the model's variables and whose edges are its paths:
   the two is set. Variances and residual variances are loops from a node to itself.
 
 Edge keys are the edge kinds, so a pair of nodes holds at most one path of each kind.
+The graph's own attribute `family` says which builder made it: "growth" here, "cross-lagged"
+in `bridge.compile.panel_graph` (whose edges also carry the parameter's generated `label`).
 """
 from __future__ import annotations
 
@@ -112,11 +114,20 @@ def growth_graph(compiled: CompiledGrowth) -> nx.MultiDiGraph:
 
 
 class NoGraph(SembridgeError):
-    """The model family has no graph (and so no path figure) yet."""
+    """The model family has no graph (and so no path figure)."""
 
 
-def model_graph(compiled) -> nx.MultiDiGraph:
-    """The graph of a compiled wide-form model, whatever its family (today: growth models)."""
+def model_graph(compiled, model=None) -> nx.MultiDiGraph:
+    """The graph of a compiled wide-form model: a growth model, or a cross-lagged plan's path model.
+
+    For a cross-lagged plan, `model` names the path model that was fitted (the relaxed form of a
+    dynamic panel); by default the compiled one. See `bridge.compile.panel_graph` for its layout.
+    """
     if isinstance(compiled, CompiledGrowth):
         return growth_graph(compiled)
-    raise NoGraph("the path figure is drawn for growth models only; this model family has none yet")
+    from .panel import CompiledPanel
+    from .panel_graph import panel_graph
+
+    if isinstance(compiled, CompiledPanel):
+        return panel_graph(compiled, model)
+    raise NoGraph("this model family has no path figure")

@@ -2,7 +2,8 @@
 
 Pure and deterministic: the same graph and estimates give byte-identical DOT (nodes
 and edges are written in a fixed, sorted order; nothing varies between runs). The
-notation: measured variables are rectangles, growth factors ellipses, the constant of
+notation: measured variables are rectangles, latent variables (growth factors; person
+effects, traits and within-person parts of a cross-lagged model) ellipses, the constant of
 the mean structure a triangle; one-headed arrows are loadings, means and regressions,
 two-headed arrows variances, covariances and residual variances. Fixed paths carry
 their fixed value, free paths their estimate (and standard error when asked). Paths
@@ -81,12 +82,20 @@ def _drawn(data: dict) -> bool:
     return data["kind"] is EdgeKind.LOADING or not (data["fixed"] is not None and data["fixed"] == 0)
 
 
+def _waves_across(graph: nx.MultiDiGraph) -> bool:
+    """Cross-lagged figures run left to right, one rank per wave; growth figures top to bottom."""
+    return graph.graph.get("family") == "cross-lagged"
+
+
 def _add_nodes(dot: graphviz.Digraph, graph: nx.MultiDiGraph) -> None:
     nodes = sorted(graph.nodes(data=True), key=_node_key)
     for name, data in nodes:
         kind = data["kind"]
         dot.node(name, _lines(data["label"]), shape=_SHAPES[kind], style="filled", fillcolor=_FILL[kind],
                  **({"margin": "0.02"} if kind is NodeKind.CONSTANT else {}))
+    if _waves_across(graph):
+        _pin_positions(dot, nodes)
+        return
     rows: dict[int, list[str]] = {}
     for name, data in nodes:
         rows.setdefault(data["row"], []).append(name)
@@ -99,6 +108,18 @@ def _add_nodes(dot: graphviz.Digraph, graph: nx.MultiDiGraph) -> None:
                 same.edge(left, right, style="invis")
 
 
+#: Spacing of a cross-lagged figure's grid, in inches: waves across, rows down.
+COLUMN_STEP, ROW_STEP = 2.9, 1.5
+
+
+def _pin_positions(dot: graphviz.Digraph, nodes) -> None:
+    """Pin every node at its (column, row) place: the constant and person-level variables left, waves across."""
+    rows = {row: i for i, row in enumerate(sorted({data["row"] for _, data in nodes}))}
+    for name, data in nodes:
+        x, y = (data["column"] + 1) * COLUMN_STEP, -rows[data["row"]] * ROW_STEP
+        dot.node(name, pos=f"{x:.2f},{y:.2f}!")
+
+
 def _loop_side(graph: nx.MultiDiGraph, name: str) -> str:
     """Where a factor's variance loop goes: outside the row for the first and last factor, else on top."""
     row = graph.nodes[name]["row"]
@@ -107,14 +128,23 @@ def _loop_side(graph: nx.MultiDiGraph, name: str) -> str:
     return "w" if column == min(columns) else "e" if column == max(columns) else "n"
 
 
+def _residual_side(graph: nx.MultiDiGraph, name: str) -> str:
+    """Where a residual loop goes: under the wave; in a cross-lagged figure away from the middle rows."""
+    if not _waves_across(graph):
+        return "s"
+    rows = sorted({d["row"] for _, d in graph.nodes(data=True)})
+    return "n" if graph.nodes[name]["row"] <= (rows[0] + rows[-1]) / 2 else "s"
+
+
 def _add_edges(dot: graphviz.Digraph, graph: nx.MultiDiGraph, estimates, show_se: bool) -> None:
     for tail, head, data in sorted(graph.edges(data=True), key=_edge_key):
         if not _drawn(data):
             continue
         label = _edge_label(data, estimates, show_se)
         kind = data["kind"]
-        if kind is EdgeKind.RESIDUAL:
-            dot.edge(tail, head, label=label, dir="both", headport="s", tailport="s")
+        if kind is EdgeKind.RESIDUAL or (kind is EdgeKind.VARIANCE and _waves_across(graph)):
+            side = _residual_side(graph, tail)
+            dot.edge(tail, head, label=label, dir="both", headport=side, tailport=side)
         elif kind is EdgeKind.VARIANCE:
             side = _loop_side(graph, tail)
             dot.edge(tail, head, label=label, dir="both", headport=side, tailport=side)
@@ -122,6 +152,8 @@ def _add_edges(dot: graphviz.Digraph, graph: nx.MultiDiGraph, estimates, show_se
             dot.edge(tail, head, headlabel=label, labeldistance="2.2", labelangle="25")
         elif kind in TWO_HEADED:
             dot.edge(tail, head, label=label, dir="both", constraint="false")
+        elif kind is EdgeKind.REGRESSION and _waves_across(graph):   # near the tail: crossing paths keep apart
+            dot.edge(tail, head, taillabel=label, labeldistance="6", labelangle="0")
         else:
             dot.edge(tail, head, label=label)
 
@@ -130,6 +162,8 @@ def diagram_source(graph: nx.MultiDiGraph, estimates: Mapping[str, Estimate] | N
                    show_se: bool = False, title: str | None = None) -> str:
     """DOT source of the path figure: the graph with its estimates (None: parameter keys instead)."""
     dot = graphviz.Digraph(name="model")
+    if _waves_across(graph):   # a fixed grid: every node pinned at its place, edges routed around them
+        dot.attr(layout="neato", splines="true", overlap="true")
     dot.attr(rankdir="TB", nodesep="0.45", ranksep="0.9", fontname=FONT, fontsize="12", labelloc="t")
     if title:
         dot.attr(label=_lines([title]))
