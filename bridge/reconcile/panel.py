@@ -194,4 +194,4 @@ def run_panel(panel: PanelData, progress: Progress = quiet) -> Reconciliation:
               "outcomes": list(panel.names), "long_rows": dict(zip(panel.names, n_rows)), "predictors": []},
         tolerance=DEFAULT_TOLERANCE.describe(),
         specifications={"wide": base.model.text(), "long": long_text(compiled), "legend": legend(compiled)},
-        caution=CAUTION, pair=compiled)
+        caution=CAUTION, pair=compiled, solution=base.solution())

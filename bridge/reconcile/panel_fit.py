@@ -36,6 +36,65 @@ class PanelFits:
     def long_values(self) -> dict[str, float]:
         return long_to_values(self.compiled, list(self.long), self.sem.values)
 
+    def solution(self) -> "PanelSolution":
+        """Every free parameter of both forms on the user's scale, with the long equations' rows and fit."""
+        c = self.compiled
+        shift = float(np.log(c.scale))
+        return PanelSolution(
+            model=self.model, wide=_to_user(self.model, c.scale, self.sem.values),
+            wide_se=_to_user(self.model, c.scale, self.sem_se, se=True),
+            long=_to_user(self.model, c.scale, {**_long_labels(c, self.long), **self.long_values}),
+            long_se=_to_user(self.model, c.scale, self.long_se, se=True),
+            rows=tuple(len(eq.y) for eq in c.equations),
+            log_likelihood=tuple(f.log_likelihood + len(eq.y) * shift for f, eq in zip(self.long, c.equations)),
+            person_intercept=c.variant is not Variant.CLPM)
+
+
+@dataclass(frozen=True)
+class PanelSolution:
+    """Both fitted forms of a cross-lagged plan, every parameter by label on the user's scale.
+
+    `wide` and `wide_se` hold every free parameter of the fitted path model `model` (also those the
+    reconciliation does not compare, such as the first wave's moments); `long` and `long_se` the long
+    lagged regressions written in the same labels. `rows` and `log_likelihood` are per outcome's equation.
+    """
+
+    model: PathModel
+    wide: dict[str, float]
+    wide_se: dict[str, float]
+    long: dict[str, float]
+    long_se: dict[str, float]
+    rows: tuple[int, ...]
+    log_likelihood: tuple[float, ...]
+    person_intercept: bool      # whether the long equations have a random person intercept
+
+
+def _long_labels(compiled: CompiledPanel, fits) -> dict[str, float]:
+    """Every coefficient and residual variance of the long equations by label (also those the wide form lacks)."""
+    out = {}
+    for eq, fit in zip(compiled.equations, fits):
+        for t in np.unique(eq.wave):
+            out.update(zip(eq.labels[t], (float(v) for v in fit.coefficients[t])))
+            out[eq.residual[t]] = float(fit.residual[t])
+    return out
+
+
+def _to_user(model: PathModel, scale: float, values: dict[str, float], se: bool = False) -> dict[str, float]:
+    """Parameters on the user's scale: means divided by the scale once, (co)variances twice, paths unchanged.
+
+    The power comes from the statement a label belongs to; the long form's constants (`i...`), which the
+    RI-CLPM's wide form does not have, are means.
+    """
+    power = {label: 1 for label in values if label.startswith("i")}
+    for s in model.statements:
+        if s.label:
+            power.setdefault(s.label, 1 if s.op == "1" else 2 if s.op == "~~" else 0)
+    out = {}
+    for label, value in values.items():
+        value = float(value) / scale ** power.get(label, 0)
+        out[label] = abs(value) if se else value
+    return out
+
 
 def _long_fits(compiled: CompiledPanel) -> list[EquationFit]:
     wave_specific = compiled.paths is Paths.WAVE_SPECIFIC

@@ -78,6 +78,8 @@ class Reconciliation:
     specifications: dict[str, str]
     caution: str
     pair: Any = field(default=None, compare=False, repr=False)  # the CompiledPair: model structure and data
+    # cross-lagged family: every parameter of both forms on the user's scale (`reconcile.panel_fit.PanelSolution`)
+    solution: Any = field(default=None, compare=False, repr=False)
 
 
     @property

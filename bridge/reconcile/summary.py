@@ -184,12 +184,33 @@ def correspondence_lines(rec: Reconciliation) -> tuple[CorrespondenceLine, ...]:
     return tuple(_line(row, titles) for row in rec.quantities)
 
 
+def figure_estimates(rec: Reconciliation) -> dict[Key, Estimate]:
+    """The wide form's estimate of every free path the path figure draws, by quantity key.
+
+    The reconciled quantities, and for a cross-lagged plan also the parameters the reconciliation
+    does not compare (the first wave's moments, an RI-CLPM's wave means and trait variances), named
+    as in its graph.
+    """
+    out = {row.key: row.sem for row in rec.quantities}
+    if rec.solution is not None:
+        from ..compile.panel_graph import nuisance_key
+
+        solution, compiled = rec.solution, rec.pair
+        for statement in solution.model.statements:
+            label = statement.label
+            if label and label in solution.wide:
+                out.setdefault(compiled.keys.get(label) or nuisance_key(compiled, statement),
+                               Estimate(solution.wide[label], solution.wide_se.get(label, math.nan)))
+    return out
+
+
 @dataclass(frozen=True)
 class ReportContent:
     """Everything the report shows, computed by the stages; renderers only lay it out.
 
-    `mixed`, `trajectories` and `graph` are None for a model family that has no growth
-    structure (the report then shows the correspondence, timing, explanations and caution).
+    Growth models have `mixed` and `trajectories`; the cross-lagged family has `lagged` (the long
+    lagged regressions) and `standardised` (the standardised paths over waves). `graph` is the wide
+    form's graph and `estimates` the SEM estimate of each of its free paths, by key.
     """
 
     reconciliation: Reconciliation
@@ -197,12 +218,23 @@ class ReportContent:
     mixed: MixedModelSummary | None = None
     trajectories: TrajectoryData | None = None
     graph: Any = field(default=None, compare=False, repr=False)   # networkx graph of the wide form
+    estimates: dict = field(default_factory=dict, compare=False, repr=False)
+    lagged: Any = None          # reconcile.lagged_summary.LaggedSummary
+    standardised: Any = None    # reconcile.standardised.StandardisedPaths
 
 
 def report_content(rec: Reconciliation) -> ReportContent:
-    """The tables' numbers, the trajectory data and the model's graph for one reconciliation."""
+    """The tables' numbers, the figures' data and the model's graph for one reconciliation."""
     lines = correspondence_lines(rec)
-    if not isinstance(rec.pair, CompiledPair):
+    if isinstance(rec.pair, CompiledPair):
+        return ReportContent(reconciliation=rec, correspondence=lines, mixed=mixed_summary(rec),
+                             trajectories=trajectory_data(rec), graph=model_graph(rec.pair.sem),
+                             estimates=figure_estimates(rec))
+    if rec.solution is None:
         return ReportContent(reconciliation=rec, correspondence=lines)
-    return ReportContent(reconciliation=rec, correspondence=lines, mixed=mixed_summary(rec),
-                         trajectories=trajectory_data(rec), graph=model_graph(rec.pair.sem))
+    from .lagged_summary import lagged_summary
+    from .standardised import standardised_paths
+
+    return ReportContent(reconciliation=rec, correspondence=lines, graph=model_graph(rec.pair, rec.solution.model),
+                         estimates=figure_estimates(rec), lagged=lagged_summary(rec),
+                         standardised=standardised_paths(rec))
