@@ -1,4 +1,5 @@
-"""`sembridge draw SPEC`: just the path figure (DOT, SVG, PNG, and PDF with a system Graphviz)."""
+"""`sembridge draw SPEC`: just the figures (the path figure as DOT, SVG, PNG, and PDF with a system Graphviz;
+for a cross-lagged model also the standardised paths over the waves)."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -21,18 +22,30 @@ def draw_command(
     no_se: bool = typer.Option(False, "--no-se", help="Leave standard errors out of the labels."),
     quiet: bool = QUIET,
 ) -> None:
-    """Draw the wide form's path figure with the SEM estimates (or, with --structure-only, without fitting)."""
+    """Draw the wide form's path figure with the SEM estimates (or, with --structure-only, without fitting).
+
+    For a cross-lagged model, also draw the standardised paths over the waves (after fitting).
+    """
     from ..compile.graph import model_graph
-    from ..render import diagram
+    from ..reconcile.summary import report_content
+    from ..render import diagram, standardised
 
     folder = out if out is not None else Path(f"{spec.stem}-figure")
     with guarded():
         if structure_only:
-            source = diagram.diagram_source(model_graph(getattr(pipeline.compile_description(spec), "sem", None)))
+            if pipeline.is_cross_lagged(spec):
+                compiled = pipeline.compile_cross_lagged(spec)
+                source = diagram.diagram_source(model_graph(compiled, compiled.relaxed or compiled.sem))
+            else:
+                source = diagram.diagram_source(model_graph(pipeline.compile_description(spec).sem))
+            files = diagram.figure_files(source, "path-diagram")
         else:
-            result = pipeline.run(spec, progress=progress(quiet))
-            source = diagram.diagram_source(model_graph(getattr(result.pair, "sem", None)), diagram.estimates_of(result),
-                                            show_se=not no_se)
-        files = diagram.figure_files(source, "path-diagram")
+            content = report_content(pipeline.run(spec, progress=progress(quiet)))
+            if content.graph is None:
+                model_graph(None)   # raises: this model family has no path figure
+            files = diagram.figure_files(diagram.diagram_source(content.graph, content.estimates, show_se=not no_se),
+                                         "path-diagram")
+            if content.standardised is not None:
+                files.update(standardised.standardised_files(content.standardised))
     write_files(folder, files)
     typer.echo("\n".join(str(folder / name) for name in files))

@@ -12,7 +12,7 @@ import html
 
 from .. import __version__
 from ..reconcile.summary import ReportContent
-from . import diagram, tables, trajectory
+from . import diagram, standardised, tables, trajectory
 from .formats import number
 from .json import to_json
 
@@ -57,21 +57,42 @@ def _header(content: ReportContent) -> str:
             f"{len(rec.quantities)} quantities compared; tolerance: {_e(rec.tolerance)}.</p>\n</header>\n")
 
 
+_GROWTH_CAPTION = (
+    "Wide form (latent growth curve). Rectangles: measured waves and predictors; ellipses: growth factors; "
+    "triangle: the constant of the mean structure. One-headed arrows: loadings (fixed, labelled with their "
+    "values), means and regressions; two-headed arrows: variances, covariances and residual variances. Free "
+    "paths show the SEM estimate with its standard error in brackets; paths fixed at zero are not drawn.")
+_PANEL_CAPTION = (
+    "Wide form (path model). Rectangles: each outcome at each wave, one row of waves per outcome; ellipses: "
+    "person effects, traits and within-person parts; triangle: the constant of the mean structure. One-headed "
+    "arrows: auto- and cross-lagged paths, loadings fixed at 1, means and intercepts; two-headed arrows: "
+    "variances, covariances and residual variances. Free paths show the SEM estimate with its standard error "
+    "in brackets; paths fixed at zero are not drawn.")
+
+
 def _model_section(content: ReportContent, figures: dict[str, bytes]) -> str:
-    if content.graph is None or content.mixed is None:
-        return ('<section id="model">\n<h2>The model</h2>\n<p class="note">The path figure and the mixed-model '
-                "table are drawn for growth models; for this model family the correspondence table below "
-                "shows every estimate.</p>\n</section>\n")
-    mixed = "".join(tables.html_table(grid) for grid in tables.mixed_grids(content.mixed))
+    if content.graph is None or (content.mixed is None and content.lagged is None):
+        return ('<section id="model">\n<h2>The model</h2>\n<p class="note">This model family has no path '
+                "figure; the correspondence table below shows every estimate.</p>\n</section>\n")
+    if content.mixed is not None:
+        grids, caption, heading = tables.mixed_grids(content.mixed), _GROWTH_CAPTION, "mixed-model table"
+    else:
+        grids, caption, heading = tables.lagged_grids(content.lagged), _PANEL_CAPTION, "lagged regressions"
+    long_form = "".join(tables.html_table(grid) for grid in grids)
     figure = _image(figures["path-diagram.svg"], "image/svg+xml", "path figure of the wide form")
-    caption = ("Wide form (latent growth curve). Rectangles: measured waves and predictors; ellipses: growth "
-               "factors; triangle: the constant of the mean structure. One-headed arrows: loadings (fixed, "
-               "labelled with their values), means and regressions; two-headed arrows: variances, covariances "
-               "and residual variances. Free paths show the SEM estimate with its standard error in brackets; "
-               "paths fixed at zero are not drawn.")
-    return (f'<section id="model">\n<h2>The model: path figure and mixed-model table</h2>\n<div class="side">\n'
+    return (f'<section id="model">\n<h2>The model: path figure and {heading}</h2>\n<div class="side">\n'
             f"<figure>{figure}<figcaption>{_e(caption)}</figcaption></figure>\n"
-            f'<div class="tables">\n{mixed}</div>\n</div>\n</section>\n')
+            f'<div class="tables">\n{long_form}</div>\n</div>\n</section>\n')
+
+
+def _standardised_section(figures: dict[str, bytes]) -> str:
+    if "standardised-paths.svg" not in figures:
+        return ""
+    figure = _image(figures["standardised-paths.svg"], "image/svg+xml", "standardised paths over the waves")
+    return ('<section id="standardised-paths">\n<h2>Standardised paths over the waves</h2>\n'
+            f"<figure>{figure}<figcaption>Each auto- and cross-lagged path times SD(predictor) / SD(outcome) at "
+            "the waves it links; left the wide form, right the long form. A time-invariant path is one horizontal "
+            "line, a wave-specific path one point per wave.</figcaption></figure>\n</section>\n")
 
 
 def _trajectory_section(figures: dict[str, bytes]) -> str:
@@ -143,6 +164,7 @@ def report_html(content: ReportContent, figures: dict[str, bytes]) -> str:
     """The self-contained page; `figures` holds at least `path-diagram.svg` and `trajectories.svg`."""
     rec = content.reconciliation
     body = "".join([_header(content), _model_section(content, figures), _trajectory_section(figures),
+                    _standardised_section(figures),
                     _correspondence_section(content), _timing_section(content), _explanations_section(content),
                     _specifications_section(content),
                     f'<section id="caution">\n<h2>Caution</h2>\n<p class="caution">{_e(rec.caution)}</p>\n</section>\n',
@@ -157,7 +179,8 @@ def report_html(content: ReportContent, figures: dict[str, bytes]) -> str:
 
 def figure_source(content: ReportContent, show_se: bool = True) -> str:
     """DOT source of the report's path figure: the wide form with the SEM estimates."""
-    return diagram.diagram_source(content.graph, diagram.estimates_of(content.reconciliation), show_se=show_se)
+    estimates = content.estimates or diagram.estimates_of(content.reconciliation)
+    return diagram.diagram_source(content.graph, estimates, show_se=show_se)
 
 
 def report_files(content: ReportContent) -> dict[str, bytes]:
@@ -174,6 +197,12 @@ def report_files(content: ReportContent) -> dict[str, bytes]:
         mixed = tables.mixed_grids(content.mixed)
         texts.update({"mixed-model.md": tables.markdown(mixed), "mixed-model.tex": tables.latex(mixed)})
         grids = (*mixed, *grids)
+    if content.standardised is not None:
+        files.update(standardised.standardised_files(content.standardised))
+    if content.lagged is not None:
+        lagged = tables.lagged_grids(content.lagged)
+        texts.update({"lagged-regressions.md": tables.markdown(lagged), "lagged-regressions.tex": tables.latex(lagged)})
+        grids = (*lagged, *grids)
     texts.update({f"{grid.name}.csv": tables.csv_text(grid) for grid in grids})
     files.update({name: text.encode("utf-8") for name, text in texts.items()})
     files["report.html"] = report_html(content, files).encode("utf-8")

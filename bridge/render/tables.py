@@ -105,6 +105,43 @@ def mixed_grids(summary: MixedModelSummary) -> tuple[Grid, ...]:
     return fixed_effects_grid(summary), variance_grid(summary), fit_grid(summary)
 
 
+def _wave(wave) -> str:
+    return "all" if wave is None else f"{wave:g}"
+
+
+def lagged_coefficients_grid(summary) -> Grid:
+    """The coefficients of each outcome's lagged regression (a `reconcile.lagged_summary.LaggedSummary`)."""
+    level = f"{summary.confidence:.0%}"
+    rows = tuple((c.outcome, _wave(c.wave), c.effect.name, c.effect.estimate, c.effect.se, c.effect.z, c.effect.p,
+                  c.effect.lower, c.effect.upper) for c in summary.coefficients)
+    lag = "Lags are centred on each person's mean. " if summary.centred else ""
+    return Grid("lagged-coefficients", "Long form (lagged regressions): coefficients",
+                ("outcome", "wave", "term", "estimate", "SE", "z", "p", f"{level} lower", f"{level} upper"),
+                (TEXT, TEXT, TEXT, NUMBER, NUMBER, NUMBER, P, NUMBER, NUMBER), rows,
+                (f"{lag}wave: the outcome's wave (all: one coefficient for every wave). z = estimate / SE; "
+                 f"two-sided p and {level} interval from the normal distribution; standard errors from the referee.",))
+
+
+def lagged_variances_grid(summary) -> Grid:
+    rows = tuple((v.outcome, _wave(v.wave), v.name, v.estimate, v.se, v.sd) for v in summary.variances)
+    return Grid("lagged-variances", "Long form (lagged regressions): residual and person-intercept variances",
+                ("outcome", "wave", "component", "estimate", "SE", "SD"),
+                (TEXT, TEXT, TEXT, NUMBER, NUMBER, NUMBER), rows,
+                ("SD: square root of the variance.",))
+
+
+def lagged_fit_grid(summary) -> Grid:
+    rows = tuple((f.outcome, f.method, f.rows, f.log_likelihood) for f in summary.fits)
+    return Grid("lagged-fit", "Long form (lagged regressions): rows and fit",
+                ("outcome", "fitted by", "rows used", "log-likelihood"), (TEXT, TEXT, STAT, STAT), rows,
+                ("Rows: person-waves from the second wave on with the outcome and every lag observed.",))
+
+
+def lagged_grids(summary) -> tuple[Grid, ...]:
+    """The long form's table for the cross-lagged family in its three parts."""
+    return lagged_coefficients_grid(summary), lagged_variances_grid(summary), lagged_fit_grid(summary)
+
+
 # ---------------------------------------------------------------------------- Markdown
 
 _MD = str.maketrans({"\\": "\\\\", "|": "\\|", "*": "\\*", "_": "\\_", "`": "\\`", "<": "&lt;", ">": "&gt;",
