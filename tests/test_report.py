@@ -310,3 +310,8 @@ def test_demo_writes_the_report(tmp_path):
         {p.name for p in folder.iterdir()}
     reports = sorted(p.parent.name for p in (tmp_path / "demo").glob("*/report.html"))
     assert len(reports) == 2 and all(name.endswith("-report") for name in reports)
+    weekly = tmp_path / "demo" / "weekly_practice-report"
+    assert {"path-diagram.svg", "path-diagram.dot", "standardised-paths.svg", "lagged-regressions.tex",
+            "lagged-coefficients.csv"} <= {p.name for p in weekly.iterdir()}
+    page = (weekly / "report.html").read_text(encoding="utf-8")
+    assert "path figure and lagged regressions" in page and "Standardised paths over the waves" in page
