@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -46,7 +47,8 @@ def simulate_command(
     population: Path = typer.Option(..., "--population", help="YAML file with the true values and the design "
                                                               "(docs/timing-lab.md)."),
     replications: int = typer.Option(..., "--replications", min=1, help="Number of simulated data sets."),
-    workers: int = typer.Option(1, "--workers", min=1, help="Local worker processes."),
+    workers: int = typer.Option(None, "--workers", min=1, help="Local worker processes (default: one per CPU "
+                                                               "core; 1 runs everything in this process)."),
     scheduler: str = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler "
                                                             "(e.g. tcp://10.0.0.5:8786) to run on instead."),
     seed: int = typer.Option(0, "--seed", min=0, help="Seed of the seed sequence that gives each replication "
@@ -61,7 +63,8 @@ def simulate_command(
 
     refuse_inputs([out / name for name in OUTPUTS], [spec, population])
     with guarded():
-        desc, truth, reps = _run(spec, population, replications, workers, scheduler, seed, quiet)
+        desc, truth, reps = _run(spec, population, replications, workers or os.cpu_count() or 1, scheduler, seed,
+                                 quiet)
     summary = summarise(reps, desc.label, truth.source, seed)
     raw = out / ("replications.csv" if csv else "replications.parquet")
     with writing(raw):
