@@ -8,6 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 import semopy
+from threadpoolctl import threadpool_limits
 
 from ..compile import CompiledGrowth, GrowthParameters
 from ..errors import FitError
@@ -63,7 +64,8 @@ def run_semopy(text: str, frame: pd.DataFrame, start: dict[str, float] | None = 
     except Exception as exc:  # semopy raises bare exceptions from its parser
         raise FitError(f"semopy rejected the generated wide-form model ({exc})") from exc
     covariance = start_covariance(frame)
-    with warnings.catch_warnings(record=True) as caught:
+    # one BLAS thread: on a busy machine semopy's many small products slow down 10-25x with more
+    with threadpool_limits(limits=1), warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         if start is not None:
             model.load(frame, cov=covariance)
