@@ -22,6 +22,7 @@ import pytest
 from scipy.stats import chi2
 
 import bridge
+import bridge.fit.sem
 import bridge.compile.growth as growth
 from bridge.compile import Plan, compile_growth
 from bridge.fit import fit_sem
@@ -131,7 +132,15 @@ def reconciled(tmp_path_factory):
         if name not in cache:
             frame, description = CASES[name]()
             path = write_case(tmp_path_factory.mktemp(name.replace("-", "_")), frame, description)
-            cache[name] = (path, bridge.run(path))
+            if name == "optimizer":
+                # semopy's own "success" trusted as it first comes back: the adapter's polishing refits are
+                # capped at one fit, so the library stops where it first reports success (about 25
+                # log-likelihood units short on these data) and the referee must find and repair it.
+                with pytest.MonkeyPatch.context() as patch:
+                    patch.setattr(bridge.fit.sem, "MAX_FITS", 1)
+                    cache[name] = (path, bridge.run(path))
+            else:
+                cache[name] = (path, bridge.run(path))
         return cache[name]
     return get
 
@@ -236,7 +245,7 @@ def test_time_coding_recovers_the_described_codings(reconciled):
 
 
 def test_optimizer_refit_on_body_weight_data(reconciled):
-    """Pinheiro & Bates (2000, pp. 222-223), body weights of rats: semopy stops short on these data."""
+    """Pinheiro & Bates (2000, pp. 222-223), body weights of rats: semopy's first fit stops short on these data."""
     _, rec = reconciled("optimizer")
     kept = [r for r in rec.refits if r["library"] == "semopy" and r["kept"]]
     assert kept, f"no kept semopy refit: {rec.refits}"

@@ -59,7 +59,12 @@ def _positive_semidefinite(cov) -> bool:
 
 
 def _tolerance(value: float) -> float:
-    return max(1e-4, 1e-7 * abs(value))
+    """How much higher another solution must score before a library is refitted from it.
+
+    Small on purpose: a refit from the better point costs one more fit and removes even the
+    optimiser-tolerance gaps (1e-5 of a log-likelihood unit and up) between the two libraries.
+    """
+    return max(1e-6, 1e-10 * abs(value))
 
 
 class _Judge:
