@@ -26,6 +26,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import pandas as pd
 import pytest
+import yaml
 from scipy.stats import chi2
 
 import bridge
@@ -529,3 +530,15 @@ def test_json_keys_and_round_trip_other_variants(runs, name, expected):
     out = bridge.to_dict(rec)
     assert {q["key"] for q in out["quantities"]} == expected
     assert json.loads(json.dumps(out, allow_nan=False)) == out
+
+
+@pytest.mark.parametrize("variant", ["dynamic-panel", "ri-clpm"])
+def test_wave_specific_paths_are_refused_where_the_long_form_has_no_counterpart(tmp_path, variant):
+    spec = tmp_path / "model.yaml"
+    spec.write_text(yaml.safe_dump({"data": {"path": "weekly.csv", "person": "person", "time": "wave",
+                                             "outcomes": ["x", "y"]},
+                                    "model": {"kind": "cross-lagged", "variant": variant, "paths": "wave-specific"}}),
+                    encoding="utf-8")
+    with pytest.raises(bridge.DescriptionError, match=rf"model.paths \(line \d+\): expected time-invariant for the "
+                                                      rf"{variant} variant"):
+        bridge.load(spec)

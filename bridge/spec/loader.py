@@ -202,6 +202,10 @@ def _model_section(r: _Reader) -> ModelSection:
     references = _reference_levels(r, predictors)
     variant = r.word("model.variant", Variant, Variant.CLPM.value)
     paths = r.word("model.paths", Paths, Paths.TIME_INVARIANT.value)
+    if paths is Paths.WAVE_SPECIFIC and variant in (Variant.DYNAMIC_PANEL, Variant.RI_CLPM):
+        r.problem("model.paths", f"time-invariant for the {variant.value} variant (its long form, a mixed model "
+                  "with one residual variance, has no wave-specific counterpart; wave-specific paths are "
+                  "available for clpm)", paths.value)
     return ModelSection(kind=kind, shape=shape, variant=variant, paths=paths, random=tuple(sorted(random, key=lambda t: t.power)),
                         predictors=tuple(predictors), categorical=tuple(categorical), residuals=r.word("model.residuals", Residuals, "equal"),
                         time_origin=origin or 0.0, reference_levels=references)
