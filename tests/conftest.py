@@ -1,6 +1,7 @@
 """Shared helpers: write a data frame and a description into a temporary folder."""
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import pandas as pd
@@ -24,3 +25,10 @@ def case(tmp_path):
     def make(frame: pd.DataFrame, description: dict, name: str = "model") -> Path:
         return write_case(tmp_path, frame, description, name)
     return make
+
+
+def assert_matches_golden(text: str, golden: Path) -> None:
+    """Compare with a stored golden file; SEMBRIDGE_UPDATE_GOLDEN=1 rewrites it first (then review the diff)."""
+    if os.environ.get("SEMBRIDGE_UPDATE_GOLDEN"):
+        golden.write_text(text, encoding="utf-8")
+    assert text == golden.read_text(encoding="utf-8")

@@ -18,7 +18,6 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-import yaml
 
 from conftest import write_case
 

@@ -6,7 +6,6 @@ change of the figure, rewrite the golden files with SEMBRIDGE_UPDATE_GOLDEN=1 an
 """
 from __future__ import annotations
 
-import os
 import shutil
 import subprocess
 import sys
@@ -14,6 +13,7 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from conftest import assert_matches_golden
 
 import bridge
 from bridge.compile.graph import CONSTANT, EdgeKind, NodeKind, growth_graph, model_graph
@@ -91,10 +91,7 @@ def test_graph_nodes_and_fixed_loadings_follow_the_time_coding(case):
 def test_dot_source_matches_the_golden_file(case, name):
     graph = growth_graph(compiled(case, name))
     source = diagram.diagram_source(graph, synthetic_estimates(graph), show_se=True)
-    golden = GOLDEN / f"{name}.dot"
-    if os.environ.get("SEMBRIDGE_UPDATE_GOLDEN"):
-        golden.write_text(source, encoding="utf-8")
-    assert source == golden.read_text(encoding="utf-8")
+    assert_matches_golden(source, GOLDEN / f"{name}.dot")
 
 
 def test_dot_source_is_the_same_whatever_the_order_of_the_estimates(case):

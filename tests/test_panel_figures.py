@@ -11,7 +11,6 @@ import csv
 import io
 import json
 import math
-import os
 import subprocess
 import sys
 from pathlib import Path
@@ -20,6 +19,7 @@ from types import SimpleNamespace
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import assert_matches_golden
 from scipy.stats import norm
 
 import bridge
@@ -132,10 +132,7 @@ def test_ri_clpm_within_rows_lie_between_the_observed_rows_and_traits_outside(ca
 def test_dot_source_matches_the_golden_file(case, name, variant):
     graph = model_graph(compiled(case, variant))
     source = diagram.diagram_source(graph, synthetic_estimates(graph), show_se=True)
-    golden = GOLDEN / f"{name}.dot"
-    if os.environ.get("SEMBRIDGE_UPDATE_GOLDEN"):
-        golden.write_text(source, encoding="utf-8")
-    assert source == golden.read_text(encoding="utf-8")
+    assert_matches_golden(source, GOLDEN / f"{name}.dot")
     files = diagram.figure_files(source, "fig")
     assert files == diagram.figure_files(source, "fig") and b"<svg" in files["fig.svg"]
 

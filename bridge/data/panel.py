@@ -8,7 +8,7 @@ import pandas as pd
 
 from ..errors import DataError
 from ..spec import Description, Layout
-from .prepare import _need_columns, _numeric
+from .prepare import need_columns, numeric_column
 from .reading import read_table
 
 
@@ -37,19 +37,19 @@ def _long(desc: Description, frame: pd.DataFrame, label: str) -> pd.DataFrame:
     if d.layout is Layout.WIDE:
         wanted = [("data.person", d.person)] + [(f"data.columns.{v}", c) for v, cols in d.panel_columns
                                                  for c, _ in cols]
-        _need_columns(frame, wanted, label)
+        need_columns(frame, wanted, label)
         parts = []
         for name, columns in d.panel_columns:
             block = frame[[d.person, *(c for c, _ in columns)]].melt(id_vars=d.person, var_name="_col",
                                                                       value_name="_y")
             block["_time"] = block.pop("_col").map(dict(columns)).astype(float)
-            parts.append(block.assign(_var=name, _y=_numeric(block, "_y", f"outcome {name!r}", label, True)))
+            parts.append(block.assign(_var=name, _y=numeric_column(block, "_y", f"outcome {name!r}", label, True)))
         return pd.concat(parts).rename(columns={d.person: "_person"})
-    _need_columns(frame, [("data.person", d.person), ("data.time", d.time),
+    need_columns(frame, [("data.person", d.person), ("data.time", d.time),
                           *(("data.outcomes", o) for o in d.outcomes)], label)
-    long = frame.assign(_time=_numeric(frame, d.time, "time", label, allow_nan=False))
+    long = frame.assign(_time=numeric_column(frame, d.time, "time", label, allow_nan=False))
     for name in d.outcomes:
-        long[name] = _numeric(frame, name, "outcome", label, allow_nan=True)
+        long[name] = numeric_column(frame, name, "outcome", label, allow_nan=True)
     return long.melt(id_vars=[d.person, "_time"], value_vars=list(d.outcomes), var_name="_var",
                      value_name="_y").rename(columns={d.person: "_person"})
 

@@ -52,14 +52,16 @@ class ShapedData:
         return long_to_wide(self.person_index, self.wave_index, self.outcome, self.n_persons, len(self.waves))
 
 
-def _need_columns(frame: pd.DataFrame, wanted: list[tuple[str, str]], label: str) -> None:
+def need_columns(frame: pd.DataFrame, wanted: list[tuple[str, str]], label: str) -> None:
+    """DataError naming the first (key, column) pair whose column the frame lacks."""
     for key, column in wanted:
         if column not in frame.columns:
             shown = ", ".join(map(str, frame.columns[:12])) + (", ..." if len(frame.columns) > 12 else "")
             raise DataError(f"{label}: unknown column '{column}' named by {key}; the file has: {shown}")
 
 
-def _numeric(frame: pd.DataFrame, column: str, role: str, label: str, allow_nan: bool) -> np.ndarray:
+def numeric_column(frame: pd.DataFrame, column: str, role: str, label: str, allow_nan: bool) -> np.ndarray:
+    """The column as floats; DataError for text, infinite values, or (unless allowed) missing values."""
     values = pd.to_numeric(frame[column], errors="coerce")
     bad = values.isna() & frame[column].notna()
     if bad.any():
@@ -77,17 +79,17 @@ def _long_frame(desc: Description, frame: pd.DataFrame, label: str) -> pd.DataFr
     d = desc.data
     predictors = list(desc.model.predictors)
     if d.layout is Layout.WIDE:
-        _need_columns(frame, [("data.person", d.person), *((f"data.columns.{c}", c) for c in d.column_times),
+        need_columns(frame, [("data.person", d.person), *((f"data.columns.{c}", c) for c in d.column_times),
                               *(("model.predictors", p) for p in predictors)], label)
         for column in d.column_times:
-            frame[column] = _numeric(frame, column, "outcome", label, allow_nan=True)
+            frame[column] = numeric_column(frame, column, "outcome", label, allow_nan=True)
         frame = wide_to_long(frame, d.person, d.column_times, time="_time", outcome="_y",
                              keep=tuple(p for p in predictors if p != d.person))
         return frame.assign(_person=frame[d.person])
-    _need_columns(frame, [("data.person", d.person), ("data.time", d.time), ("data.outcome", d.outcome),
+    need_columns(frame, [("data.person", d.person), ("data.time", d.time), ("data.outcome", d.outcome),
                           *(("model.predictors", p) for p in predictors)], label)
-    return frame.assign(_person=frame[d.person], _time=_numeric(frame, d.time, "time", label, allow_nan=False),
-                        _y=_numeric(frame, d.outcome, "outcome", label, allow_nan=True))
+    return frame.assign(_person=frame[d.person], _time=numeric_column(frame, d.time, "time", label, allow_nan=False),
+                        _y=numeric_column(frame, d.outcome, "outcome", label, allow_nan=True))
 
 
 def _predictor_design(desc: Description, per_person: pd.DataFrame, label: str):

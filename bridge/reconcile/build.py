@@ -45,7 +45,8 @@ def _data_summary(shaped: ShapedData, base: Evaluation) -> dict:
             "seconds": {"sem": adj.sem.seconds, "mixed": adj.mixed.seconds}}
 
 
-def _overall(rows) -> Verdict:
+def overall_verdict(rows) -> Verdict:
+    """unexplained if any row is, else explained if any row is, else agree."""
     verdicts = {r.verdict for r in rows}
     if Verdict.UNEXPLAINED in verdicts:
         return Verdict.UNEXPLAINED
@@ -58,7 +59,7 @@ def reconcile(shaped: ShapedData, base: Evaluation, progress: Progress = quiet) 
     adj = base.adjudication
     texts = pair_specifications(base.pair)
     return Reconciliation(
-        description=shaped.description.label, verdict=_overall(explained.rows), quantities=explained.rows,
+        description=shaped.description.label, verdict=overall_verdict(explained.rows), quantities=explained.rows,
         timing=shaped.timing.to_dict(), log_likelihood={k: float(v) for k, v in adj.log_likelihood.items()},
         referee_checks=tuple({"library": c.library, "criterion": c.criterion, "library_value": float(c.library_value),
                               "referee_value": float(c.referee_value),

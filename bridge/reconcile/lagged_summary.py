@@ -17,7 +17,7 @@ import numpy as np
 from ..compile.panel import CompiledPanel
 from ..spec import Paths, Variant
 from .result import Estimate, Reconciliation
-from .summary import CONFIDENCE, FixedEffect, _wald
+from .summary import CONFIDENCE, FixedEffect, wald
 
 
 @dataclass(frozen=True)
@@ -92,7 +92,7 @@ def lagged_summary(rec: Reconciliation, confidence: float = CONFIDENCE) -> Lagge
         outcome = names[eq.outcome]
         for t, wave in _waves(compiled, eq):
             for label, term in zip(eq.labels[t], terms):
-                effect = _wald(_key(compiled, label, outcome, wave), term, _estimate(values, ses, label), confidence)
+                effect = wald(_key(compiled, label, outcome, wave), term, _estimate(values, ses, label), confidence)
                 coefficients.append(LaggedCoefficient(outcome, wave, effect))
             v = _estimate(values, ses, eq.residual[t])
             variances.append(LaggedVariance(outcome, wave, _key(compiled, eq.residual[t], outcome, wave), "residual",

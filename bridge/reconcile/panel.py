@@ -10,7 +10,7 @@ from ..compile.panel import CompiledPanel, compile_panel
 from ..data import PanelData
 from ..progress import Progress, quiet
 from ..spec import Variant
-from .build import CAUTION, _overall
+from .build import CAUTION, overall_verdict
 from .causes import CATALOGUE
 from .nickell import nickell_bias
 from .panel_fit import PanelFits, fit_panel
@@ -181,9 +181,9 @@ def run_panel(panel: PanelData, progress: Progress = quiet) -> Reconciliation:
                       "referee_at_mixed": base.referee_at_long + panel.n_observed * scale_log}
     findings = [Finding("library-message", "semopy", m) for m in base.sem.messages]
     findings += [Finding("library-message", "statsmodels", m) for f in base.long for m in f.messages]
-    ordered = tuple(rows[k] for k in (r.key for r in panel_rows(base)))
+    ordered = tuple(rows.values())  # insertion order is the rows' order
     return Reconciliation(
-        description=panel.description.label, verdict=_overall(ordered), quantities=ordered, timing=_timing(panel),
+        description=panel.description.label, verdict=overall_verdict(ordered), quantities=ordered, timing=_timing(panel),
         log_likelihood=log_likelihood, referee_checks=_checks(base, scale_log, n_rows),
         refits=tuple({"library": r.library, "reason": r.reason, "before": float(r.before), "after": float(r.after),
                       "kept": bool(r.kept)} for r in base.refits),

@@ -107,7 +107,7 @@ def effect_name(column: FixedColumn, time: str) -> str:
     return f"{column.predictor.key} × {term}" if term else column.predictor.key
 
 
-def _wald(key: Key, name: str, value: Estimate, confidence: float) -> FixedEffect:
+def wald(key: Key, name: str, value: Estimate, confidence: float) -> FixedEffect:
     z = value.estimate / value.se if value.se and math.isfinite(value.se) and value.se > 0 else math.nan
     p = float(2 * norm.sf(abs(z))) if math.isfinite(z) else math.nan
     half = float(norm.ppf(0.5 + confidence / 2)) * value.se
@@ -165,7 +165,7 @@ def mixed_summary(rec: Reconciliation, confidence: float = CONFIDENCE) -> MixedM
     """The long form's fixed effects, variance components and fit statistics, on the user's scale."""
     values = _mixed_estimates(rec)
     time = time_name(rec)
-    fixed = tuple(_wald(c.key, effect_name(c, time), values[c.key], confidence)
+    fixed = tuple(wald(c.key, effect_name(c, time), values[c.key], confidence)
                   for c in rec.pair.mixed.fixed_columns if c.key in values)
     variances = _variance_components(rec, values)
     return MixedModelSummary(fixed=fixed, variances=variances,

@@ -5,7 +5,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key, LongDesign
+from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key, LongDesign, cov_key, var_key
 from ..fit import FitOutcome, fit_mixed, fit_sem
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
@@ -156,8 +156,7 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
 def variance_keys(compiled: CompiledGrowth, equal_residuals: bool) -> list[list[Key]]:
     """For each free variance parameter, the quantity keys it stands for."""
     terms = compiled.random_terms
-    keys = [[f"var.{a.value}" if i == j else f"cov.{terms[j].value}.{a.value}"]
-            for i, a in enumerate(terms) for j in range(i + 1)]
+    keys = [[var_key(a) if i == j else cov_key(terms[j], a)] for i, a in enumerate(terms) for j in range(i + 1)]
     residual_keys = [k for k in compiled.keys if k.startswith("var.residual")]
     if equal_residuals:
         return keys + [residual_keys]

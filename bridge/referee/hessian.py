@@ -7,7 +7,8 @@ from ..compile import GrowthParameters
 from .likelihood import Referee
 
 
-def _hessian(f, x: np.ndarray, steps: np.ndarray) -> np.ndarray:
+def numerical_hessian(f, x: np.ndarray, steps: np.ndarray) -> np.ndarray:
+    """Central-difference Hessian of a scalar function at x with one step per coordinate."""
     k = len(x)
     H = np.zeros((k, k))
     f0 = f(x)
@@ -35,7 +36,7 @@ def variance_standard_errors(referee: Referee, params: GrowthParameters, equal_r
 
     scale = max(float(np.abs(theta).max()), 1e-8)
     steps = 1e-4 * np.maximum(np.abs(theta), 1e-2 * scale)
-    H = _hessian(criterion, theta, steps)
+    H = numerical_hessian(criterion, theta, steps)
     if not np.all(np.isfinite(H)):
         return np.full(len(theta), np.nan)
     try:

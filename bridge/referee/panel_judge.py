@@ -6,7 +6,7 @@ import numpy as np
 from ..compile import GrowthParameters, LongDesign
 from ..compile.panel import CompiledPanel, LongEquation
 from ..fit.lagged import EquationFit
-from .hessian import _hessian, variance_standard_errors
+from .hessian import numerical_hessian, variance_standard_errors
 from .likelihood import Referee
 from .panel import PathReferee
 
@@ -69,7 +69,7 @@ def path_standard_errors(referee: PathReferee, values: dict[str, float]) -> dict
         return referee.log_likelihood(dict(zip(labels, vector)))
 
     steps = 1e-4 * np.maximum(np.abs(x), 1e-2)
-    H = _hessian(criterion, x, steps)
+    H = numerical_hessian(criterion, x, steps)
     try:
         cov = np.linalg.inv(-H) if np.all(np.isfinite(H)) else np.full(H.shape, np.nan)
     except np.linalg.LinAlgError:

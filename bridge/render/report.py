@@ -183,25 +183,28 @@ def figure_source(content: ReportContent, show_se: bool = True) -> str:
     return diagram.diagram_source(content.graph, estimates, show_se=show_se)
 
 
+def _text_tables(stem: str, grids) -> dict[str, str]:
+    return {f"{stem}.md": tables.markdown(grids), f"{stem}.tex": tables.latex(grids)}
+
+
 def report_files(content: ReportContent) -> dict[str, bytes]:
     """Every output file by name: the page, the figures (with their DOT), the tables, the JSON result."""
     files: dict[str, bytes] = {}
     grids = (tables.correspondence_grid(content.correspondence),)
-    texts = {"correspondence.md": tables.markdown(grids), "correspondence.tex": tables.latex(grids),
-             "result.json": to_json(content.reconciliation)}
+    texts = {**_text_tables("correspondence", grids), "result.json": to_json(content.reconciliation)}
     if content.graph is not None:
         files.update(diagram.figure_files(figure_source(content), "path-diagram"))
     if content.trajectories is not None:
         files.update(trajectory.trajectory_files(content.trajectories))
     if content.mixed is not None:
         mixed = tables.mixed_grids(content.mixed)
-        texts.update({"mixed-model.md": tables.markdown(mixed), "mixed-model.tex": tables.latex(mixed)})
+        texts.update(_text_tables("mixed-model", mixed))
         grids = (*mixed, *grids)
     if content.standardised is not None:
         files.update(standardised.standardised_files(content.standardised))
     if content.lagged is not None:
         lagged = tables.lagged_grids(content.lagged)
-        texts.update({"lagged-regressions.md": tables.markdown(lagged), "lagged-regressions.tex": tables.latex(lagged)})
+        texts.update(_text_tables("lagged-regressions", lagged))
         grids = (*lagged, *grids)
     texts.update({f"{grid.name}.csv": tables.csv_text(grid) for grid in grids})
     files.update({name: text.encode("utf-8") for name, text in texts.items()})

@@ -14,14 +14,14 @@ import matplotlib.pyplot as plt  # noqa: E402  (after choosing the backend)
 from matplotlib.figure import Figure  # noqa: E402
 
 from ..reconcile.standardised import StandardisedPaths  # noqa: E402
-from .trajectory import _plain, figure_bytes  # noqa: E402
+from .trajectory import plain_text, figure_bytes  # noqa: E402
 
 _COLOURS = ("#2f5d8a", "#b5542b", "#3f7f4f", "#7a4f8f", "#8a7a2f", "#2f7f7f")
 _FORMS = (("sem", "wide form (SEM)"), ("mixed", "long form (lagged regressions)"))
 
 
 def _name(path) -> str:
-    return _plain(f"{path.source} → {path.target}")
+    return plain_text(f"{path.source} → {path.target}")
 
 
 def standardised_figure(data: StandardisedPaths) -> Figure:
@@ -40,12 +40,12 @@ def standardised_figure(data: StandardisedPaths) -> Figure:
                     ax.plot(path.waves, path.values, color=colour, linewidth=0.9, marker="o", markersize=4,
                             label=_name(path))
             ax.set_title(title, loc="left")
-            ax.set_xlabel(f"{_plain(data.time)} of the outcome")
+            ax.set_xlabel(f"{plain_text(data.time)} of the outcome")
             ax.set_xlim(data.first_wave - 0.3, data.last_wave + 0.3)
             ax.spines[["top", "right"]].set_visible(False)
         axes[0].set_ylabel("standardised path")
         axes[1].legend(loc="best", frameon=False, fontsize=8)
-        figure.text(0.01, 0.01, f"Standardised: {_plain(data.note)}.", fontsize=7, color="#555555")
+        figure.text(0.01, 0.01, f"Standardised: {plain_text(data.note)}.", fontsize=7, color="#555555")
         figure.tight_layout(rect=(0, 0.04, 1, 1))
     return figure
 

@@ -20,7 +20,7 @@ _GROUP_COLOURS = ("#2f5d8a", "#b5542b", "#3f7f4f", "#7a4f8f", "#8a7a2f", "#2f7f7
 _FORM_STYLE = {"sem": ("-", "wide form (SEM)"), "mixed": ("--", "long form (mixed model)")}
 
 
-def _plain(text: str) -> str:
+def plain_text(text: str) -> str:
     """User text shown literally by matplotlib (a `$` would start math mode)."""
     return text.replace("$", r"\$")
 
@@ -40,17 +40,17 @@ def trajectory_figure(data: TrajectoryData) -> Figure:
                       marker="o", markersize=2)
         for curve in data.curves:
             style, form = _FORM_STYLE[curve.form]
-            label = form if len(data.groups) == 1 else f"{form}: {_plain(curve.group)}"
+            label = form if len(data.groups) == 1 else f"{form}: {plain_text(curve.group)}"
             axes.plot(curve.times, curve.values, linestyle=style, color=_colour(data, curve.group),
                       linewidth=2.2 if curve.form == "sem" else 1.6, label=label)
         shown = len(data.persons)
         sample = "every person" if shown == data.persons_total else f"{shown} of {data.persons_total} persons"
-        axes.set_title(f"Observed {_plain(data.outcome)} ({sample}) and the mean each fit implies", loc="left")
-        axes.set_xlabel(_plain(data.time))
-        axes.set_ylabel(_plain(data.outcome))
+        axes.set_title(f"Observed {plain_text(data.outcome)} ({sample}) and the mean each fit implies", loc="left")
+        axes.set_xlabel(plain_text(data.time))
+        axes.set_ylabel(plain_text(data.outcome))
         axes.legend(loc="best", frameon=False, fontsize=8)
         if data.note:
-            figure.text(0.01, 0.01, f"Curves with {_plain(data.note)}.", fontsize=7, color="#555555")
+            figure.text(0.01, 0.01, f"Curves with {plain_text(data.note)}.", fontsize=7, color="#555555")
         axes.spines[["top", "right"]].set_visible(False)
         figure.tight_layout()
     return figure

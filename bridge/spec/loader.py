@@ -257,8 +257,7 @@ def load(path: str | Path) -> Description:
     model = _model_section(reader)
     estimation = _estimation_section(reader)
     sem_form, mixed_form = _form(reader, "sem"), _form(reader, "mixed")
-    if reader.problems:
+    if reader.problems or data is None:  # every path that leaves data unset has recorded a problem
         raise DescriptionError(f"{path.name}: " + "; ".join(reader.problems))
-    assert data is not None  # every path that leaves data unset records a problem
     return Description(data=data, model=model, estimation=estimation, sem_form=sem_form, mixed_form=mixed_form,
                        source=path.resolve())

@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ..data.prepare import need_columns, numeric_column
 from ..data.reading import read_table
 from ..data.timing import Timing, classify
 from ..errors import DataError
@@ -149,17 +150,8 @@ def check_waves(waves: tuple[float, ...] | None) -> tuple[float, ...] | None:
 
 
 def _columns(frame: pd.DataFrame, label: str, person: str, time: str) -> tuple[np.ndarray, np.ndarray]:
-    for role, column in (("--person", person), ("--time", time)):
-        if column not in frame.columns:
-            shown = ", ".join(map(str, frame.columns[:12])) + (", ..." if len(frame.columns) > 12 else "")
-            raise DataError(f"{label}: unknown column '{column}' named by {role}; the file has: {shown}")
-    values = pd.to_numeric(frame[time], errors="coerce")
-    bad = values.isna() & frame[time].notna()
-    if bad.any():
-        raise DataError(f"{label}: time column '{time}' is not numeric (found {frame.loc[bad, time].iloc[0]!r})")
-    times = values.to_numpy(dtype=float, na_value=np.nan)
-    if np.isnan(times).any() or np.isinf(times).any():
-        raise DataError(f"{label}: time column '{time}' has missing or infinite values")
+    need_columns(frame, [("--person", person), ("--time", time)], label)
+    times = numeric_column(frame, time, "time", label, allow_nan=False)
     if frame[person].isna().any():
         raise DataError(f"{label}: person column '{person}' has missing values")
     codes = pd.factorize(frame[person].astype(str), sort=False)[0]
