@@ -46,8 +46,10 @@ def _data_summary(shaped: ShapedData, base: Evaluation) -> dict:
 
 
 def overall_verdict(rows) -> Verdict:
-    """unexplained if any row is, else explained if any row is, else agree."""
+    """undecided if any row is, else unexplained if any row is, else explained if any row is, else agree."""
     verdicts = {r.verdict for r in rows}
+    if Verdict.UNDECIDED in verdicts:
+        return Verdict.UNDECIDED
     if Verdict.UNEXPLAINED in verdicts:
         return Verdict.UNEXPLAINED
     return Verdict.EXPLAINED if Verdict.EXPLAINED in verdicts else Verdict.AGREE
