@@ -193,13 +193,11 @@ def figure_estimates(rec: Reconciliation) -> dict[Key, Estimate]:
     """
     out = {row.key: row.sem for row in rec.quantities}
     if rec.solution is not None:
-        from ..compile.panel_graph import nuisance_key
-
         solution, compiled = rec.solution, rec.pair
         for statement in solution.model.statements:
             label = statement.label
             if label and label in solution.wide:
-                out.setdefault(compiled.keys.get(label) or nuisance_key(compiled, statement),
+                out.setdefault(compiled.keys.get(label) or compiled.family.nuisance_key(compiled, statement),
                                Estimate(solution.wide[label], solution.wide_se.get(label, math.nan)))
     return out
 
@@ -219,8 +217,8 @@ class ReportContent:
     trajectories: TrajectoryData | None = None
     graph: Any = field(default=None, compare=False, repr=False)   # networkx graph of the wide form
     estimates: dict = field(default_factory=dict, compare=False, repr=False)
-    lagged: Any = None          # reconcile.lagged_summary.LaggedSummary
-    standardised: Any = None    # reconcile.standardised.StandardisedPaths
+    lagged: Any = None          # the cross-lagged family's LaggedSummary (families/cross_lagged/lagged_summary.py)
+    standardised: Any = None    # its StandardisedPaths (families/cross_lagged/standardised.py)
 
 
 def report_content(rec: Reconciliation) -> ReportContent:
@@ -230,11 +228,7 @@ def report_content(rec: Reconciliation) -> ReportContent:
         return ReportContent(reconciliation=rec, correspondence=lines, mixed=mixed_summary(rec),
                              trajectories=trajectory_data(rec), graph=model_graph(rec.pair.sem),
                              estimates=figure_estimates(rec))
-    if rec.solution is None:
+    family = getattr(rec.pair, "family", None)
+    if family is None or rec.solution is None:
         return ReportContent(reconciliation=rec, correspondence=lines)
-    from .lagged_summary import lagged_summary
-    from .standardised import standardised_paths
-
-    return ReportContent(reconciliation=rec, correspondence=lines, graph=model_graph(rec.pair, rec.solution.model),
-                         estimates=figure_estimates(rec), lagged=lagged_summary(rec),
-                         standardised=standardised_paths(rec))
+    return ReportContent(reconciliation=rec, correspondence=lines, **family.report_parts(rec))

@@ -140,11 +140,14 @@ def _explanations_section(content: ReportContent) -> str:
                 "<p>Every quantity agrees; there is nothing to explain.</p>\n</section>\n")
     parts = ['<section id="explanations">\n<h2>Why the numbers differ</h2>\n']
     for e in rec.explanations:
+        refit = bool(e.gap_after)   # a note has no refit behind it, hence no "after" column
         gaps = "".join(f"<tr><td>{_e(k)}</td><td class=\"num\">{_e(number(e.gap_before.get(k)))}</td>"
-                       f"<td class=\"num\">{_e(number(e.gap_after.get(k)))}</td></tr>\n" for k in e.quantities)
+                       + (f"<td class=\"num\">{_e(number(e.gap_after.get(k)))}</td>" if refit else "")
+                       + "</tr>\n" for k in e.quantities)
+        after = '<th class="num">gap after the refit</th>' if refit else ""
         parts.append(f"<h3>{_e(e.title)} [{_e(e.cause)}]</h3>\n<p>{_e(e.why)}</p>\n<p>Evidence: {_e(e.evidence)}</p>\n"
                      f'<table class="grid"><thead><tr><th>quantity</th><th class="num">gap with the cause</th>'
-                     f'<th class="num">gap after the refit</th></tr></thead>\n<tbody>\n{gaps}</tbody></table>\n')
+                     f'{after}</tr></thead>\n<tbody>\n{gaps}</tbody></table>\n')
     if rec.findings:
         parts.append("<h3>Notes</h3>\n<ul>\n" + "".join(f"<li>{_e(f.library or 'sembridge')}: {_e(f.message)}</li>\n"
                                                          for f in rec.findings) + "</ul>\n")
@@ -154,7 +157,7 @@ def _explanations_section(content: ReportContent) -> str:
 def _specifications_section(content: ReportContent) -> str:
     texts = content.reconciliation.specifications
     blocks = (("Wide form: semopy model text", texts.get("wide", "")),
-              ("Long form: statsmodels MixedLM on its array interface", texts.get("long", "")),
+              (texts.get("long_heading", "Long form: statsmodels MixedLM on its array interface"), texts.get("long", "")),
               ("Generated names", texts.get("legend", "")))
     body = "".join(f"<h3>{_e(title)}</h3>\n<pre>{_e(text)}</pre>\n" for title, text in blocks)
     return f'<section id="specifications">\n<h2>Generated specifications</h2>\n{body}</section>\n'

@@ -9,7 +9,8 @@ from rich.text import Text
 
 from ..reconcile import Reconciliation, Verdict
 
-_STYLE = {Verdict.AGREE: "green", Verdict.EXPLAINED: "yellow", Verdict.UNEXPLAINED: "bold red"}
+_STYLE = {Verdict.AGREE: "green", Verdict.EXPLAINED: "yellow", Verdict.UNEXPLAINED: "bold red",
+          Verdict.UNDECIDED: "bold magenta"}
 
 
 def _fmt(value: float) -> str:
@@ -31,6 +32,10 @@ def quantity_table(rec: Reconciliation) -> Table:
     return table
 
 
+def _fmt6(value: float) -> str:
+    return "n/a" if value is None or not math.isfinite(value) else f"{value:.6f}"
+
+
 def _summary_lines(rec: Reconciliation) -> list[str]:
     t, d, ll = rec.timing, rec.data, rec.log_likelihood
     lines = [f"Description: {rec.description}",
@@ -43,8 +48,11 @@ def _summary_lines(rec: Reconciliation) -> list[str]:
         if p["level"] is not None:
             lines.append(f"Predictor {p['key']}: 1 when {p['column']} is {p['level']!r}, 0 at the reference "
                          f"level {p['reference']!r}")
-    lines.append(f"Log-likelihood: semopy {ll['sem']:.6f}, statsmodels {ll['mixed']:.6f}; referee on exact times "
-                 f"at the SEM solution {ll['referee_at_sem']:.6f}, at the mixed solution {ll['referee_at_mixed']:.6f}")
+    lines.append(f"Log-likelihood: semopy {_fmt6(ll['sem'])}, statsmodels {_fmt6(ll['mixed'])}; referee on exact times "
+                 f"at the SEM solution {_fmt6(ll['referee_at_sem'])}, at the mixed solution "
+                 f"{_fmt6(ll['referee_at_mixed'])}")
+    if d.get("log_likelihood_note"):
+        lines.append(d["log_likelihood_note"])
     for c in rec.referee_checks:
         lines.append(f"Referee check ({c['library']}, {c['criterion']}): library {c['library_value']:.6f}, "
                      f"referee {c['referee_value']:.6f}, relative difference {c['relative_difference']:.1e}")
@@ -65,4 +73,6 @@ def render(rec: Reconciliation, console: Console) -> None:
         console.print(Text(f"Note ({finding.library or 'sembridge'}): {finding.message}"))
     console.print(Text(f"Tolerance: {rec.tolerance}.", style="dim"))
     console.print(Text(f"Overall verdict: {rec.verdict.value}", style=_STYLE[rec.verdict]))
+    if getattr(rec, "undecided_reason", ""):
+        console.print(Text(rec.undecided_reason))
     console.print(Text(f"Caution: {rec.caution}", style="italic"))

@@ -9,8 +9,8 @@ import numpy as np
 import statsmodels.api as sm
 from statsmodels.regression.mixed_linear_model import MixedLM, MixedLMParams
 
-from ..compile.panel import LongEquation
-from ..errors import FitError
+from .model import LongEquation
+from ...errors import FitError
 
 
 @dataclass(frozen=True)
