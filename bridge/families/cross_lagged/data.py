@@ -106,14 +106,14 @@ def shape_panel(desc: Description, frame: pd.DataFrame | None = None) -> PanelDa
 
 
 def _waves(desc: Description, long: pd.DataFrame, persons: np.ndarray, label: str) -> tuple[Timing, np.ndarray]:
-    """Each row's wave: the description's waves (long layout), else the distinct times; no two rows per wave."""
+    """Each row's wave on the shared classifier's grid (`bridge.data.timing.classify`); no two rows per wave."""
     occasions = long.drop_duplicates(["_person", "_time"])
     codes = np.searchsorted(persons, occasions["_person"].to_numpy())
     times = occasions["_time"].to_numpy(float)
     grid = desc.estimation.waves
-    if grid is None:
-        grid = tuple(float(t) for t in np.unique(times))
-    timing, index = classify(codes, times, grid)
+    if desc.data.layout is Layout.WIDE:   # the column map gives the waves
+        grid = tuple(sorted({float(t) for _, columns in desc.data.panel_columns for _, t in columns}))
+    timing, index = classify(codes, times, grid)   # without a grid: the distinct times, or one inferred
     if timing.shared_wave_persons:
         raise DataError(f"{label}: {timing.shared_wave_persons} person(s) have two occasions nearest to the same "
                         "wave; give estimation.waves a finer grid")
