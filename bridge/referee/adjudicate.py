@@ -7,8 +7,10 @@ import numpy as np
 
 from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key, LongDesign, cov_key, var_key
 from ..fit import FitOutcome, fit_mixed, fit_sem
+from .certificate import Certificate
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
+from .spaces import certify_growth, space_of
 
 NEAR_SINGULAR = 1e-4  # smallest/largest eigenvalue of the person-effect covariance
 
@@ -51,6 +53,12 @@ class Adjudication:
     log_likelihood: dict[str, float]
     sem_se: dict[Key, float]
     mixed_se: dict[Key, float]
+    certificates: tuple[Certificate, ...] = ()
+
+    @property
+    def certified(self) -> bool:
+        """Whether both final solutions are certified maxima of the models their libraries fitted."""
+        return bool(self.certificates) and all(c.passed for c in self.certificates)
 
 
 def _positive_semidefinite(cov) -> bool:
@@ -105,6 +113,38 @@ class _Judge:
         self.refits.append(Refit(library, reason.format(gap=rival - before), before, after, kept))
         return new if kept else current
 
+    def certified(self, library: str, compiled: CompiledGrowth, fit: FitOutcome, refit,
+                  attempts: int = 2) -> tuple[FitOutcome, Certificate]:
+        """Certify a solution in its library's own space; polish it (refit from the referee's maximum) until it passes.
+
+        The library refits from the referee's maximum and its own numbers are kept, so the
+        reported estimates stay the library's; the certificate of the last solution is returned.
+        """
+        wide = library == "semopy"
+        referee = self.sem_referee if wide else self.mixed_referee
+        space = space_of(compiled, referee, fit.params, reml=False if wide else self.reml, psd=not wide,
+                         equal_residuals=compiled.equal_residuals if wide else True)
+        form = "wide" if wide else "long"
+        certificate, best = certify_growth(space, compiled, fit.params, fit.own_log_likelihood, library, form)
+        repairs: list[str] = []
+        for _ in range(attempts):
+            if certificate.passed or best is None:
+                break
+            before = space.full(fit.params) + space.shift
+            new = refit(best)
+            new_certificate, new_best = certify_growth(space, compiled, new.params, new.own_log_likelihood,
+                                                       library, form)
+            after = space.full(new.params) + space.shift
+            kept = bool(new_certificate.passed or after > before)
+            self.refits.append(Refit(library, f"the referee's certificate failed ({certificate.reason}); refitted "
+                                     "from the referee's maximum", before, after, kept))
+            repairs.append(f"refitted from the referee's maximum: criterion {before:.6f} -> {after:.6f}")
+            if kept:
+                fit, certificate, best = new, new_certificate, new_best
+        for text in repairs:
+            certificate = certificate.with_repair(text)
+        return fit, certificate
+
     def exact_log_likelihood(self, compiled: CompiledGrowth, params: GrowthParameters) -> float:
         referee = self.referee(compiled.exact_design)
         return referee.log_likelihood(params) + compiled.scaling.log_jacobian(referee.n_obs)
@@ -139,6 +179,9 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
         mixed = judge.better("statsmodels", mixed, sem.params,
                              "the semopy solution scores {gap:.4g} higher under the long-form criterion",
                              lambda p: fit_mixed(pair.mixed, reml, start=p))
+    sem, sem_certificate = judge.certified("semopy", pair.sem, sem, lambda p: fit_sem(pair.sem, start=p))
+    mixed, mixed_certificate = judge.certified("statsmodels", pair.mixed, mixed,
+                                               lambda p: fit_mixed(pair.mixed, reml, start=p))
     checks = (LikelihoodCheck("semopy", "ml", sem.own_log_likelihood, judge.sem_score(sem.params)),
               LikelihoodCheck("statsmodels", "reml" if reml else "ml", mixed.own_log_likelihood,
                               judge.mixed_score(mixed.params)))
@@ -150,7 +193,8 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
                         refits=tuple(judge.refits), checks=checks, log_likelihood=log_likelihood,
                         sem_se=standard_errors(pair.sem, judge.sem_referee, sem.params, pair.sem.equal_residuals,
                                                False),
-                        mixed_se=standard_errors(pair.mixed, judge.mixed_referee, mixed.params, True, reml))
+                        mixed_se=standard_errors(pair.mixed, judge.mixed_referee, mixed.params, True, reml),
+                        certificates=(sem_certificate, mixed_certificate))
 
 
 def variance_keys(compiled: CompiledGrowth, equal_residuals: bool) -> list[list[Key]]:
