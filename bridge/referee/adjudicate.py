@@ -10,7 +10,7 @@ from ..fit import FitOutcome, fit_mixed, fit_sem
 from .certificate import Certificate
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
-from .spaces import certify_growth, space_of
+from .spaces import certify_growth, is_psd, space_of
 
 NEAR_SINGULAR = 1e-4  # smallest/largest eigenvalue of the person-effect covariance
 
@@ -61,11 +61,6 @@ class Adjudication:
         return bool(self.certificates) and all(c.passed for c in self.certificates)
 
 
-def _positive_semidefinite(cov) -> bool:
-    eig = np.linalg.eigvalsh(cov)
-    return bool(eig.min() >= -1e-10 * max(float(np.abs(eig).max()), 1e-12))
-
-
 def _tolerance(value: float) -> float:
     """How much higher another solution must score before a library is refitted from it.
 
@@ -102,7 +97,7 @@ class _Judge:
     def better(self, library: str, current: FitOutcome, candidate: GrowthParameters, reason: str, refit) -> FitOutcome:
         """Refit `library` from `candidate` when the candidate scores higher under its own criterion."""
         score = self.sem_score if library == "semopy" else self.mixed_score
-        if library == "statsmodels" and not _positive_semidefinite(candidate.cov):
+        if library == "statsmodels" and not is_psd(candidate.cov):
             return current  # outside the mixed model's parameter space: a boundary matter, not a short stop
         before, rival = score(current.params), score(candidate)
         if not rival > before + _tolerance(before):
@@ -151,10 +146,18 @@ class _Judge:
 
 
 def _boundary_candidate(compiled: CompiledGrowth, mixed: FitOutcome, reml: bool) -> FitOutcome | None:
-    eig = np.linalg.eigvalsh(mixed.params.cov)
-    if len(eig) < 2 or (eig.min() > NEAR_SINGULAR * max(eig.max(), 1e-12) and mixed.reported_success):
+    """The mixed model with the variance on its boundary fixed at zero, when one variance is (nearly) zero.
+
+    Only a variance at zero can be fixed that way; a singular matrix of another kind (a correlation of
+    +/-1) is left to the certificate, whose Cholesky space contains it.
+    """
+    diag = np.diag(mixed.params.cov)
+    if len(diag) < 2:
         return None
-    return fit_mixed(compiled, reml, random_terms=1)
+    low = [i for i, d in enumerate(diag) if d <= NEAR_SINGULAR * max(float(diag.max()), 1e-12)]
+    if not low or len(low) == len(diag):
+        return None
+    return fit_mixed(compiled, reml, keep=tuple(i for i in range(len(diag)) if i not in low))
 
 
 def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudication:
@@ -169,7 +172,7 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
     boundary = _boundary_candidate(pair.mixed, mixed, reml)
     if boundary is not None:
         mixed = judge.better("statsmodels", mixed, boundary.params,
-                             "the boundary solution (person-effect covariance of rank 1) scores {gap:.4g} higher",
+                             "the solution with the boundary variance fixed at zero scores {gap:.4g} higher",
                              lambda p: fit_mixed(pair.mixed, reml, start=p))
     if pair.comparable:
         sem = judge.better("semopy", sem, mixed.params,
