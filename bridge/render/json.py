@@ -19,7 +19,7 @@ def _plain(value):
         return {str(k): _plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
         return [_plain(v) for v in value]
-    if isinstance(value, bool) or value is None or isinstance(value, str):
+    if isinstance(value, (bool, int, str)) or value is None:
         return value
     if isinstance(value, (int, float)) or hasattr(value, "__float__"):
         return _number(float(value))
