@@ -22,6 +22,14 @@ def _findings(base: Evaluation) -> tuple[Finding, ...]:
     for fit in (adj.first_sem, adj.first_mixed, adj.sem, adj.mixed):
         out += [Finding("library-message", fit.library, m) for m in fit.messages]
         out += [Finding("fit-note", fit.library, n) for n in fit.notes]
+    for fit in (adj.sem, adj.mixed):
+        if not fit.reported_success:
+            out.append(Finding("not-converged", fit.library, f"{fit.library} did not report convergence for its "
+                                                             "final solution; the referee's certificate decides"))
+    for c in adj.certificates:
+        if not c.passed:
+            out.append(Finding("certificate-failed", c.library, f"the {c.form} form's solution is not a certified "
+                                                                f"maximum: {c.reason}"))
     for refit in adj.refits:
         result = "kept" if refit.kept else "not better; the first solution was kept"
         out.append(Finding("stopped-short", refit.library,

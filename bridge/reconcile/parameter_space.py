@@ -27,18 +27,27 @@ def applies(evaluation: Evaluation) -> bool:
 def constrained(evaluation: Evaluation) -> Evaluation:
     """The evaluation with the SEM's solution replaced by the referee's maximum of the SEM's model over PSD matrices.
 
-    The search starts from the mixed solution when both forms share one parameter space, else from the
-    SEM's solution moved to the nearest positive semidefinite matrix; the result is certified like any
-    library's solution (library "referee").
+    When both forms share one parameter space the mixed solution is tried first: if it is a certified
+    maximum of the SEM's model over positive semidefinite matrices, it is that maximum (on a flat ridge
+    another search could stop at a different point of equal likelihood). Otherwise the referee searches
+    from the SEM's solution moved to the nearest positive semidefinite matrix. The result is certified
+    like any library's solution (library "referee").
     """
     if not applies(evaluation):
         return evaluation
     pair, adj = evaluation.pair, evaluation.adjudication
     referee = Referee(pair.sem.wave_design)
-    start = adj.mixed.params if pair.comparable and pair.sem.equal_residuals else adj.sem.params
-    space = space_of(pair.sem, referee, start, reml=False, psd=True)
-    params, value = space.maximum(start)
-    certificate, _ = certify_growth(space, pair.sem, params, value, "referee", "wide (positive semidefinite)")
+    shared = pair.comparable and pair.sem.equal_residuals
+    space = space_of(pair.sem, referee, adj.mixed.params if shared else adj.sem.params, reml=False, psd=True)
+    form = "wide (positive semidefinite)"
+    certificate = None
+    if shared:
+        params = adj.mixed.params
+        value = space.full(params) + space.shift
+        certificate, _ = certify_growth(space, pair.sem, params, value, "referee", form)
+    if certificate is None or not certificate.passed:
+        params, value = space.maximum(adj.sem.params)
+        certificate, _ = certify_growth(space, pair.sem, params, value, "referee", form)
     fit = FitOutcome(library="referee", params=params, own_log_likelihood=value, reported_success=certificate.passed,
                      start="the referee's maximum over positive semidefinite matrices")
     sem_se = adj.sem_se  # the spaces differ only on the boundary; the unconstrained SEs are the ones reported
