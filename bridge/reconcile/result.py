@@ -22,6 +22,7 @@ EXIT_CODES = {Verdict.AGREE: 0, Verdict.EXPLAINED: 0, Verdict.UNEXPLAINED: 3, Ve
 class Estimate:
     estimate: float
     se: float
+    se_flag: str = ""   # "boundary": the solution is on the boundary of its space; the SE is not an ordinary one
 
 
 @dataclass(frozen=True)
@@ -52,6 +53,7 @@ class Explanation:
     evidence: str
     why: str
     details: dict
+    note: bool = False  # a cause that no refit can remove: reported beside the gap, never changes a verdict
 
 
 @dataclass(frozen=True)

@@ -42,6 +42,7 @@ class LocalMaximum:
     hessian: np.ndarray      # of the criterion at `point`, over all coordinates
     active: np.ndarray       # coordinates held at a bound
     iterations: int
+    start_decrement: float   # g'(-H)^-1 g / 2 at the starting point: the gain a Newton step predicted there
 
     @property
     def free(self) -> np.ndarray:
@@ -169,7 +170,7 @@ def maximise_locally(criterion: Criterion, x0: np.ndarray, lower: np.ndarray | N
     value = f(x)
     if not np.isfinite(value):
         raise ValueError("the criterion is not defined at the starting point")
-    iterations = 0
+    iterations, start_decrement = 0, np.nan
     for iterations in range(1, max_iterations + 1):
         steps = default_steps(x)
         g = gradient(f, x, steps)
@@ -178,7 +179,9 @@ def maximise_locally(criterion: Criterion, x0: np.ndarray, lower: np.ndarray | N
         H = _hessian(f, x, steps)
         direction = np.zeros(n)
         direction[free], decrement = _ascent(H[np.ix_(free, free)], g[free])
-        if decrement <= 1e-12 * max(1.0, abs(value)):
+        if iterations == 1:
+            start_decrement = decrement
+        if decrement <= max(1e-11, 1e-14 * abs(value)):
             break
         t, improved = 1.0, False
         while t > 1e-10:
@@ -193,20 +196,8 @@ def maximise_locally(criterion: Criterion, x0: np.ndarray, lower: np.ndarray | N
     steps = default_steps(x)
     g = gradient(f, x, steps)
     return LocalMaximum(point=x, value=value, hessian=_hessian(f, x, steps),
-                        active=_active(x, g, lower, upper, steps), iterations=iterations)
-
-
-def newton_decrement(criterion: Criterion, x: np.ndarray, lower=None, upper=None) -> float:
-    """The gain a (projected) Newton step predicts at x: g'(-H)^-1 g / 2 over the coordinates not at a bound."""
-    f = _safe(criterion)
-    n = len(x)
-    lower = np.full(n, -np.inf) if lower is None else np.asarray(lower, float)
-    upper = np.full(n, np.inf) if upper is None else np.asarray(upper, float)
-    steps = default_steps(x)
-    g = gradient(f, x, steps)
-    free = ~_active(x, g, lower, upper, steps)
-    H = _hessian(f, x, steps)
-    return _ascent(H[np.ix_(free, free)], g[free])[1]
+                        active=_active(x, g, lower, upper, steps), iterations=iterations,
+                        start_decrement=float(start_decrement))
 
 
 def curvature(maximum: LocalMaximum) -> tuple[str, int]:
@@ -268,23 +259,26 @@ def _quantity_se(quantities: Callable[[np.ndarray], np.ndarray], maximum: LocalM
 def certify(criterion: Criterion, x: np.ndarray, names: tuple[str, ...], reported: float, *, library: str,
             form: str, criterion_name: str = "ml", lower: np.ndarray | None = None,
             upper: np.ndarray | None = None, shift: float = 0.0, starts: int = 1,
-            quantities: Callable[[np.ndarray], np.ndarray] | None = None) -> tuple[Certificate, LocalMaximum]:
+            quantities: Callable[[np.ndarray], np.ndarray] | None = None,
+            at_solution: float | None = None) -> tuple[Certificate, LocalMaximum | None]:
     """Certify a library's solution `x` of `criterion` (the referee's log-likelihood of the library's model).
 
     `shift` turns the criterion's value into the user's scale of `reported`; `quantities` maps a
     parameter vector to the numbers the tool reports (identity by default), on which moves are measured;
-    `names` label the coordinates (for the boundary list).
+    `names` label the coordinates (for the boundary list). When the criterion profiles some parameters
+    out, `at_solution` is the referee's value (criterion's scale) at the library's full solution: it is
+    what the library's own value must reproduce, and the gain is measured from it.
     """
     f = _safe(criterion)
     x = np.asarray(x, float)
-    at_solution = f(x)
+    at_solution = f(x) if at_solution is None else float(at_solution)
     referee = at_solution + shift
     if not np.isfinite(at_solution):
         passed, reason = verdict_of(reported, referee, np.inf, np.inf)
         return Certificate(library, form, criterion_name, reported, referee, np.inf, np.inf, np.inf,
                            "undefined", (), starts, passed, reason), None
-    decrement = newton_decrement(f, x, lower, upper)
     maximum = maximise_locally(f, x, lower, upper)
+    decrement = maximum.start_decrement
     gain = max(0.0, maximum.value - at_solution)
     measure = quantities or (lambda v: v)
     se = _quantity_se(measure, maximum)

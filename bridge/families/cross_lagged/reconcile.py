@@ -133,7 +133,8 @@ def _short_panel_note(fits: PanelFits, rows: dict) -> list[Explanation]:
             f"effects beside the observed gap (mixed minus RI-CLPM): {shown}. No refit can remove this difference "
             f"(the two are different models), so it does not change any verdict.")
     gaps = _gaps(rows.values())
-    return [_explanation("short-panel-bias", list(details), gaps, {}, text, {"note": True, **details})]
+    return [replace(_explanation("short-panel-bias", list(details), gaps, {}, text, {"note": True, **details}),
+                    note=True)]
 
 
 def _missing(compiled: CompiledPanel, base: PanelFits, rows: dict) -> list[Explanation]:
@@ -187,6 +188,18 @@ def _findings(fits: PanelFits, panel: PanelData) -> list[Finding]:
     return out
 
 
+def _non_finite(rows) -> list[Finding]:
+    """An estimate or standard error that is not a finite number is a finding (and null in the JSON)."""
+    out = []
+    for row in rows:
+        for library, value in (("semopy", row.sem), ("statsmodels", row.mixed)):
+            if not np.isfinite(value.estimate):
+                out.append(Finding("non-finite", library, f"{row.key}: the estimate is not a finite number"))
+            elif not np.isfinite(value.se) and not np.isnan(value.se):
+                out.append(Finding("non-finite", library, f"{row.key}: the standard error is not finite"))
+    return out
+
+
 def _undecided(fits: PanelFits, rows: dict) -> str:
     failed = [c for c in fits.certificates if not c.passed]
     if not failed:
@@ -221,6 +234,7 @@ def run_panel(panel: PanelData, progress: Progress = quiet) -> Reconciliation:
     if compiled.variant is Variant.RI_CLPM and not reason:
         explanations += _short_panel_note(base, rows)
     ordered = tuple(rows.values())  # insertion order is the rows' order
+    findings = _findings(base, panel) + _non_finite(ordered)
     return Reconciliation(
         description=panel.description.label, verdict=overall_verdict(ordered), quantities=ordered,
         timing=panel.timing_summary(), log_likelihood=_log_likelihoods(base),
@@ -229,7 +243,7 @@ def run_panel(panel: PanelData, progress: Progress = quiet) -> Reconciliation:
                              for c in base.checks),
         refits=tuple({"library": r.library, "reason": r.reason, "before": float(r.before), "after": float(r.after),
                       "kept": bool(r.kept)} for r in base.refits),
-        findings=tuple(dict.fromkeys(_findings(base, panel))), explanations=tuple(explanations),
+        findings=tuple(dict.fromkeys(findings)), explanations=tuple(explanations),
         data=_data(panel, compiled), tolerance=DEFAULT_TOLERANCE.describe(),
         specifications={"wide": base.model.text(), "long": long_text(compiled), "legend": legend(compiled),
                         "long_heading": long_heading(compiled)},
