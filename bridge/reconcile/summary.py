@@ -20,10 +20,9 @@ from typing import Any
 
 from scipy.stats import norm
 
-from ..compile import CompiledPair, FixedColumn, Key, cov_key, var_key
-from ..compile.graph import model_graph
+from ..compile import FixedColumn, Key, cov_key, var_key
 from ..spec import Term
-from .curves import TrajectoryData, trajectory_data
+from .curves import TrajectoryData
 from .result import Estimate, QuantityRow, Reconciliation
 
 CONFIDENCE = 0.95
@@ -226,11 +225,7 @@ class ReportContent:
 def report_content(rec: Reconciliation) -> ReportContent:
     """The tables' numbers, the figures' data and the model's graph for one reconciliation."""
     lines = correspondence_lines(rec)
-    if isinstance(rec.pair, CompiledPair):
-        return ReportContent(reconciliation=rec, correspondence=lines, mixed=mixed_summary(rec),
-                             trajectories=trajectory_data(rec), graph=model_graph(rec.pair.sem),
-                             estimates=figure_estimates(rec))
-    family = getattr(rec.pair, "family", None)
-    if family is None or rec.solution is None:
+    family = getattr(rec.pair, "family", None)   # the compiled models carry their family (the contract)
+    if family is None:
         return ReportContent(reconciliation=rec, correspondence=lines)
     return ReportContent(reconciliation=rec, correspondence=lines, **family.report_parts(rec))

@@ -175,7 +175,7 @@ def _findings(fits: PanelFits, panel: PanelData) -> list[Finding]:
     out += [Finding("fit-note", "semopy", n) for n in fits.notes]
     out += [Finding("certificate", c.library, f"{c.form} form not certified as a maximum: {c.reason}")
             for c in fits.certificates if not c.passed]
-    out += [Finding("stopped-short", r.library, f"{r.library}: {r.reason}; log-likelihood {r.before:.6f} -> "
+    out += [Finding("stopped-short", r.library, f"{r.reason}; log-likelihood {r.before:.6f} -> "
                     f"{r.after:.6f} ({'kept' if r.kept else 'not better; the first solution was kept'})")
             for r in fits.refits]
     out += _time_binning_note(panel)
