@@ -146,12 +146,58 @@ def _start(compiled: CompiledPanel, model: PathModel, start_user: dict) -> dict[
 
 
 def _alternative_starts(compiled: CompiledPanel, model: PathModel, run: SemopyRun) -> list[dict[str, float]]:
-    """Other starts for variants with known local optima: paths at 0, and the first solution's paths halved."""
+    """Other starts for variants with known local optima.
+
+    The dynamic panel: the first solution with its paths at 0, and halved. The RI-CLPM: starts built from
+    the data's moments (trait variance = the average covariance of an outcome across different waves, the
+    rest within-person), with the autoregressions at 0 and at 0.5, the cross-lagged paths at 0.
+    """
     if compiled.variant is Variant.CLPM:
         return []
+    if compiled.variant is Variant.RI_CLPM:
+        return [_moment_start(compiled, model, auto) for auto in (0.0, 0.5)]
     zero_paths = {k: (0.0 if k.startswith(("a", "c")) else v) for k, v in run.values.items()}
     halved = {k: (0.5 * v if k.startswith(("a", "c")) else v) for k, v in run.values.items()}
     return [zero_paths, halved]
+
+
+def _moment_start(compiled: CompiledPanel, model: PathModel, auto: float) -> dict[str, float]:
+    """An RI-CLPM start from pairwise moments of the internal data (see `_alternative_starts`)."""
+    K, T = len(compiled.panel.names), compiled.n_waves
+    frame = compiled.frame
+    cov = frame.cov(min_periods=2).to_numpy()
+    at = {name: i for i, name in enumerate(frame.columns)}
+    means = frame.mean().to_dict()
+
+    def between(j: int, k: int, same_wave: bool) -> float:
+        pairs = [cov[at[f"v{j}_{t}"], at[f"v{k}_{s}"]] for t in range(T) for s in range(T)
+                 if (t == s) == same_wave and (j != k or t != s or same_wave)]
+        pairs = [p for p in pairs if np.isfinite(p)]
+        return float(np.mean(pairs)) if pairs else 0.0
+
+    variance = [between(k, k, True) for k in range(K)]
+    trait = [min(max(between(k, k, False), 0.05 * variance[k]), 0.9 * variance[k]) for k in range(K)]
+    out = {}
+    for label in model.labels:
+        head = label.rstrip("0123456789_")
+        if label.startswith("mu"):
+            out[label] = float(means[f"v{label[2:]}"])
+        elif label.startswith("ut"):
+            j, k = map(int, label[2:].split("_"))
+            out[label] = 0.5 * between(j, k, False)
+        elif head == "u":
+            out[label] = trait[int(label[1:])]
+        elif head in ("s", "r"):
+            j, k = map(int, label[1:].split("_")[:2])
+            out[label] = variance[k] - trait[k] if j == k else 0.5 * (between(j, k, True) - between(j, k, False))
+        elif head == "e":
+            k = int(label[1:].split("_")[0])
+            out[label] = (1.0 - auto ** 2) * (variance[k] - trait[k])
+        elif head == "a":
+            out[label] = auto
+        else:
+            out[label] = 0.0
+    return out
 
 
 def _bounds(model: PathModel) -> tuple[np.ndarray, np.ndarray]:
