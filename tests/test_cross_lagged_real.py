@@ -329,3 +329,22 @@ def test_three_wave_ri_clpm_reaches_the_maximum_past_a_local_optimum(tmp_path):
         row = rec.row(key)
         assert abs(row.sem.estimate - ours[key]) <= max(1e-4 * abs(ours[key]), 1e-3 * row.sem.se), key
     assert rec.certificates[0].passed and rec.certificates[0].starts == 3
+
+
+@pytest.mark.slow
+def test_non_finite_numbers_become_null_and_the_json_stays_valid(wages):
+    """The first report of this issue: -inf from semopy crashed --json (common practice: JSON has no inf/NaN)."""
+    from dataclasses import replace
+
+    from bridge.reconcile.result import Estimate
+
+    _, rec = wages["own"]
+    row = replace(rec.quantities[0], sem=Estimate(float("-inf"), float("nan")))
+    broken = replace(rec, quantities=(row, *rec.quantities[1:]),
+                     log_likelihood={**rec.log_likelihood, "sem": float("-inf")},
+                     referee_checks=({**rec.referee_checks[0], "library_value": float("-inf")},),
+                     data={**rec.data, "internal_scales": {"lwage": float("inf"), "wks": 1.0}})
+    out = json.loads(to_json(broken))
+    assert out["quantities"][0]["sem"]["estimate"] is None and out["log_likelihood"]["sem"] is None
+    assert out["referee_checks"][0]["library_value"] is None
+    assert out["data"]["internal_scales"]["lwage"] is None

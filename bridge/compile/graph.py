@@ -12,7 +12,7 @@ whose nodes are the model's variables and whose edges are its paths:
 
 Edge keys are the edge kinds, so a pair of nodes holds at most one path of each kind.
 The graph's own attribute `family` says which builder made it: "growth" here, "cross-lagged"
-in `bridge.compile.panel_graph` (whose edges also carry the parameter's generated `label`).
+in `bridge.families.cross_lagged.graph` (whose edges also carry the parameter's generated `label`).
 """
 from __future__ import annotations
 

@@ -79,7 +79,7 @@ class CompiledPanel:
 
     def user_factor(self, label: str) -> float:
         """The factor that takes a parameter from the internal to the user's scale (module docstring)."""
-        return _factors(self)[label]
+        return self.factors[label]
 
     def to_user(self, label: str, value: float) -> float:
         return float(value) * self.user_factor(label)
@@ -90,7 +90,7 @@ class CompiledPanel:
         return {k: abs(v) for k, v in out.items()} if se else out
 
     def values_from_user(self, values: dict[str, float]) -> dict[str, float]:
-        return {label: float(v) / self.user_factor(label) for label, v in values.items() if label in _factors(self)}
+        return {label: float(v) / self.user_factor(label) for label, v in values.items() if label in self.factors}
 
     def log_shift(self, counts) -> float:
         """Internal -> user log-likelihood: + sum over observed values of log(scale of their outcome)."""
@@ -237,10 +237,6 @@ def _correspondence(keys: dict[str, str], variant: Variant) -> tuple[Corresponde
 def _outcome_of(node: str) -> int:
     """The outcome a generated variable belongs to: `v1_3`, `w1_3`, `h1`, `k1` -> 1."""
     return int(node[1:].partition("_")[0])
-
-
-def _factors(compiled: CompiledPanel) -> dict[str, float]:
-    return compiled.factors
 
 
 def label_factors(compiled: CompiledPanel) -> dict[str, float]:
