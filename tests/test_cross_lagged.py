@@ -411,7 +411,8 @@ def test_missing_waves_cost_the_long_form_rows_not_the_wide_form(runs):
     complete = int(both.all(axis=1).sum())
     assert rec.data["long_rows"] == ours
     assert all(v < truth.n_persons * (truth.n_waves - 1) for v in ours.values())
-    assert rec.data["occasions_used"] == rec.data["occasions_read"] == observed   # the wide form keeps them all
+    assert rec.data["values_used"] == rec.data["values_read"] == observed   # the wide form keeps them all
+    assert rec.data["occasions_used"] == int(frame[list(NAMES)].notna().any(axis=1).sum())
     assert rec.data["persons_used"] == truth.n_persons
     explanation = _explanation(rec, "missing-data")
     assert explanation.details["sem_values"] == observed

@@ -31,6 +31,7 @@ class PanelData:
     persons_read: int
     timing: Timing | None = None
     values_read: int = 0        # observed values in the file (before complete cases, if asked for)
+    occasions_read: int = 0     # (person, wave) pairs with any observed value, likewise
 
     @property
     def n_persons(self) -> int:
@@ -38,7 +39,13 @@ class PanelData:
 
     @property
     def n_observed(self) -> int:
+        """Observed values (outcome x person x wave)."""
         return int(np.isfinite(self.values).sum())
+
+    @property
+    def n_occasions(self) -> int:
+        """(person, wave) pairs with at least one observed outcome."""
+        return int(np.isfinite(self.values).any(axis=2).sum())
 
     def observed_by_outcome(self) -> np.ndarray:
         """Observed values of each outcome."""
@@ -96,13 +103,14 @@ def shape_panel(desc: Description, frame: pd.DataFrame | None = None) -> PanelDa
     _check(values, names, waves, label)
     seen = np.isfinite(values).any(axis=(1, 2))
     read = int(np.isfinite(values).sum())
+    occasions = int(np.isfinite(values).any(axis=2).sum())
     if desc.estimation.missing is Missing.COMPLETE_CASES:
         seen &= np.isfinite(values).all(axis=(1, 2))
         if seen.sum() < 3:
             raise DataError(f"{label}: fewer than 3 persons have every outcome at every wave (complete cases)")
     return PanelData(description=desc, persons=tuple(persons[seen]), waves=tuple(float(w) for w in waves),
                      names=tuple(names), values=values[seen], persons_read=len(persons), timing=timing,
-                     values_read=read)
+                     values_read=read, occasions_read=occasions)
 
 
 def _waves(desc: Description, long: pd.DataFrame, persons: np.ndarray, label: str) -> tuple[Timing, np.ndarray]:

@@ -260,7 +260,8 @@ def _log_likelihoods(fits: PanelFits) -> dict[str, float]:
 def _data(panel: PanelData, compiled: CompiledPanel) -> dict:
     rows = [len(eq.y) for eq in compiled.equations]
     return {"persons_read": panel.persons_read, "persons_used": panel.n_persons,
-            "occasions_read": panel.values_read or panel.n_observed, "occasions_used": panel.n_observed,
+            "occasions_read": panel.occasions_read or panel.n_occasions, "occasions_used": panel.n_occasions,
+            "values_read": panel.values_read or panel.n_observed, "values_used": panel.n_observed,
             "missing": panel.description.estimation.missing.value, "method": "ml", "variant": compiled.variant.value,
             "paths": compiled.paths.value, "outcomes": list(panel.names), "long_rows": dict(zip(panel.names, rows)),
             "predictors": [], "internal_scales": dict(zip(panel.names, compiled.scales)),
