@@ -212,8 +212,15 @@ def curvature(maximum: LocalMaximum) -> tuple[str, int]:
 
 
 def moves(solution: np.ndarray, maximum: np.ndarray, se: np.ndarray) -> np.ndarray:
-    """Each quantity's distance to the referee's maximum in units of its allowed move (<= 1 passes)."""
-    allowed = np.maximum(MOVE_RELATIVE * np.abs(maximum), np.where(np.isfinite(se), MOVE_SE * se, 0.0))
+    """Each quantity's distance to the referee's maximum in units of its allowed move (<= 1 passes).
+
+    Allowed: MOVE_RELATIVE of the value; for a value near zero (within one standard error of it)
+    MOVE_SE of its standard error instead, when that is larger.
+    """
+    finite = np.isfinite(se)
+    near_zero = finite & (np.abs(maximum) < np.where(finite, se, 0.0))
+    by_se = np.where(near_zero, MOVE_SE * np.where(finite, se, 0.0), 0.0)
+    allowed = np.maximum(MOVE_RELATIVE * np.abs(maximum), by_se)
     allowed = np.maximum(allowed, 1e-12 * max(1.0, float(np.abs(maximum).max()) if len(maximum) else 1.0))
     return np.abs(solution - maximum) / allowed
 
