@@ -33,7 +33,7 @@ def _fit_once(model: MixedLM, reml: bool, start):
     return model.fit(reml=reml, **kwargs)
 
 
-def boundary_face(cov: np.ndarray, relative: float = 1e-8) -> np.ndarray | None:
+def boundary_face(cov: np.ndarray, relative: float = 1e-7) -> np.ndarray | None:
     """An orthonormal basis of the range of a singular person-effect covariance (None when it is regular)."""
     w, V = np.linalg.eigh((cov + cov.T) / 2)
     kept = w > relative * max(float(w.max()), 1e-300)

@@ -21,6 +21,8 @@ from ..compile.parameters import is_psd, nearest_psd, psd_factor
 from .certificate import MOVE_RELATIVE, MOVE_SE, Certificate, certify, maximise_locally
 from .likelihood import Referee
 
+SINGULAR = 1e-8   # smallest/largest eigenvalue of the person-effect covariance at which it counts as singular
+
 
 @dataclass(frozen=True)
 class GrowthSpace:
@@ -68,6 +70,13 @@ class GrowthSpace:
         """The criterion at a full solution (fixed effects as given under ML)."""
         return self.referee.criterion(params, self.reml)
 
+    def singular(self, vector: np.ndarray) -> bool:
+        """Whether the person-effect covariance at a point is singular (on the edge of the PSD cone)."""
+        if not self.psd:
+            return False
+        w = np.linalg.eigvalsh(self.template.with_variances(self.natural(vector), self.equal_residuals).cov)
+        return bool(w.min() <= SINGULAR * max(float(w.max()), 1e-300))
+
     def lower(self) -> np.ndarray:
         rows, cols = np.tril_indices(self._q)
         n_res = 1 if self.equal_residuals else len(self.template.residual)
@@ -104,7 +113,7 @@ def certify_growth(space: GrowthSpace, compiled: CompiledGrowth, params: GrowthP
     certificate, found = certify(
         space.criterion, space.vector(params), space.names(), reported, library=library, form=form,
         criterion_name="reml" if space.reml else "ml", lower=space.lower(), shift=space.shift,
-        quantities=space.natural, at_solution=space.full(params))
+        quantities=space.natural, at_solution=space.full(params), singular=space.singular)
     if found is None:
         return certificate, None
     best = space.params(found.point)
