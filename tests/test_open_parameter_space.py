@@ -21,7 +21,7 @@ from test_exact_maxima import misses, reconciled, reference
 # both are polished from the referee's maximum (the long form on the boundary face it found).
 
 
-def _cases(test: str):
+def _cases():
     return [pytest.param(degree, method, id=f"{shape}-{method}")
             for degree, shape in ((1, "linear"), (2, "quadratic")) for method in ("ml", "reml")]
 
@@ -48,14 +48,14 @@ def test_the_reference_maxima_differ_as_published_in_issue_9():
             assert np.linalg.eigvalsh(_matrix(reference("Loblolly", method, degree, True), degree)).min() > -1e-10
 
 
-@pytest.mark.parametrize("degree, method", _cases("reach"))
+@pytest.mark.parametrize("degree, method", _cases())
 def test_each_form_reaches_the_maximum_of_its_own_space(degree, method):
     rec = reconciled("Loblolly", method, degree)
     assert misses(rec, "sem", reference("Loblolly", "ml", degree, False), "Loblolly") == {}
     assert misses(rec, "mixed", reference("Loblolly", method, degree, True), "Loblolly") == {}
 
 
-@pytest.mark.parametrize("degree, method", _cases("explained"))
+@pytest.mark.parametrize("degree, method", _cases())
 def test_the_difference_is_explained_by_the_parameter_space(degree, method):
     rec = reconciled("Loblolly", method, degree)
     assert rec.verdict is Verdict.EXPLAINED
