@@ -263,36 +263,60 @@ def fit_wide(compiled: CompiledPanel, model: PathModel) -> tuple[dict, dict, Cer
             compiled.values_to_user(path_standard_errors(referee, run.values), se=True), certificate)
 
 
-def _long_certificates(compiled: CompiledPanel, fits: list[EquationFit]) -> list[Certificate]:
-    """Each equation's solution under its own likelihood (the long form's referee)."""
-    wave_specific = compiled.paths is Paths.WAVE_SPECIFIC
-    out = []
+def _long_certificates(compiled: CompiledPanel, fits: list[EquationFit], refits: list
+                       ) -> tuple[list[Certificate], list[EquationFit]]:
+    """Each equation's solution under its own likelihood; a mixed model that fails is refitted from the
+    referee's maximum and kept when it then passes (or scores higher)."""
+    certificates, out = [], []
     for eq, fit in zip(compiled.equations, fits):
-        referee = _equation_referee(compiled, eq)
-        params = equation_parameters(fit, eq, wave_specific)
-        nf = len(params.fixed)
-        used = np.unique(eq.wave)
-        residual = params.residual[used] if wave_specific else params.residual[used[:1]]
-        x = np.concatenate([params.fixed, residual, [] if compiled.variant is Variant.CLPM else [fit.person_variance]])
-        waves = np.unique(eq.wave)
+        certificate, maximum = _long_certificate(compiled, eq, fit)
+        if not certificate.passed and maximum is not None and compiled.variant is not Variant.CLPM:
+            nf = eq.X.shape[1]
+            point = maximum.point
+            again = fit_person_intercept(eq, compiled.n_waves, (point[:nf], float(point[-1]), float(point[nf])))
+            shift = _equation_shift(compiled, eq)
+            before, after = _equation_score(compiled, eq, fit), _equation_score(compiled, eq, again)
+            polished, _ = _long_certificate(compiled, eq, again)
+            kept = bool(polished.passed or after > before)
+            refits.append(Refit("statsmodels", f"its solution for outcome {compiled.panel.names[eq.outcome]} failed "
+                                f"the referee's certificate ({certificate.reason}); refitted from the referee's "
+                                "maximum", before + shift, after + shift, kept))
+            if kept:
+                fit, certificate = again, polished.with_repair("refitted from the referee's maximum")
+        certificates.append(certificate)
+        out.append(fit)
+    return certificates, out
 
-        def criterion(v, nf=nf, waves=waves, referee=referee, n_res=len(residual)):
-            res = np.full(compiled.n_waves, np.nan)
-            res[waves] = v[nf:nf + n_res] if n_res == len(waves) else v[nf]
-            cov = np.array([[v[-1]]]) if compiled.variant is not Variant.CLPM else np.zeros((1, 1))
-            if np.any(res[waves] <= 0) or cov[0, 0] < 0:
-                return -np.inf
-            return referee.log_likelihood(type(params)(v[:nf], cov, res))
 
-        lower = np.concatenate([np.full(nf, -np.inf), np.zeros(len(x) - nf)])
-        names = tuple(f"b{i}" for i in range(nf)) + tuple(f"residual{i}" for i in range(len(residual))) + \
-            (() if compiled.variant is Variant.CLPM else ("person variance",))
-        shift = _equation_shift(compiled, eq)
-        library = f"statsmodels ({compiled.panel.names[eq.outcome]})"
-        certificate, _ = certify(criterion, x, names, fit.log_likelihood + shift, library=library,
-                                 form=f"long ({compiled.panel.names[eq.outcome]})", lower=lower, shift=shift)
-        out.append(certificate)
-    return out
+def _long_certificate(compiled: CompiledPanel, eq, fit: EquationFit):
+    """One equation's certificate and the referee's maximum (`bridge.referee.certificate.certify`).
+
+    Coordinates: the coefficients, the residual variance (one per wave when wave-specific) and, for a
+    mixed model, the person-intercept variance (bounded below by 0).
+    """
+    wave_specific = compiled.paths is Paths.WAVE_SPECIFIC
+    mixed = compiled.variant is not Variant.CLPM
+    referee = _equation_referee(compiled, eq)
+    params = equation_parameters(fit, eq, wave_specific)
+    nf, waves = len(params.fixed), np.unique(eq.wave)
+    residual = params.residual[waves] if wave_specific else params.residual[waves[:1]]
+    x = np.concatenate([params.fixed, residual, [fit.person_variance] if mixed else []])
+
+    def criterion(v: np.ndarray) -> float:
+        res = np.full(compiled.n_waves, np.nan)
+        res[waves] = v[nf:nf + len(residual)] if len(residual) == len(waves) else v[nf]
+        cov = np.array([[v[-1]]]) if mixed else np.zeros((1, 1))
+        if np.any(res[waves] <= 0) or cov[0, 0] < 0:
+            return -np.inf
+        return referee.log_likelihood(type(params)(v[:nf], cov, res))
+
+    lower = np.concatenate([np.full(nf, -np.inf), np.zeros(len(x) - nf)])
+    names = tuple(f"b{i}" for i in range(nf)) + tuple(f"residual{i}" for i in range(len(residual))) \
+        + (("person variance",) if mixed else ())
+    shift = _equation_shift(compiled, eq)
+    outcome = compiled.panel.names[eq.outcome]
+    return certify(criterion, x, names, fit.log_likelihood + shift, library=f"statsmodels ({outcome})",
+                   form=f"long ({outcome})", lower=lower, shift=shift)
 
 
 def fit_panel(compiled: CompiledPanel, model: PathModel, start: dict[str, float] | None = None,
@@ -325,6 +349,7 @@ def fit_panel(compiled: CompiledPanel, model: PathModel, start: dict[str, float]
         sem = again if kept else sem
     certificate, maximum = _certificate(compiled, model, referee, sem, starts)
     sem, certificate = _repair_wide(compiled, model, referee, sem, certificate, maximum, starts, refits)
+    long_certificates, long = _long_certificates(compiled, long, refits)
     sem_ll = semopy_log_likelihood(sem, referee.n_observed) + shift
     checks = [LikelihoodCheck("semopy", "ml", sem_ll, referee.log_likelihood(sem.values) + shift)]
     checks += [LikelihoodCheck(f"statsmodels ({compiled.panel.names[eq.outcome]})", "ml",
@@ -345,7 +370,7 @@ def fit_panel(compiled: CompiledPanel, model: PathModel, start: dict[str, float]
         long_log_likelihood=sum(f.log_likelihood + _equation_shift(compiled, eq)
                                 for f, eq in zip(long, compiled.equations)),
         referee_at_long=referee.log_likelihood(candidate) + shift if compiled.equivalent else float("nan"),
-        refits=tuple(refits), checks=tuple(checks), certificates=(certificate, *_long_certificates(compiled, long)),
+        refits=tuple(refits), checks=tuple(checks), certificates=(certificate, *long_certificates),
         notes=tuple(notes), messages=messages, long_fits=tuple(long), first_long_fits=tuple(first_long))
 
 
