@@ -348,3 +348,24 @@ def test_non_finite_numbers_become_null_and_the_json_stays_valid(wages):
     assert out["quantities"][0]["sem"]["estimate"] is None and out["log_likelihood"]["sem"] is None
     assert out["referee_checks"][0]["library_value"] is None
     assert out["data"]["internal_scales"]["lwage"] is None
+
+
+def test_a_non_finite_objective_is_rescaled_and_refitted(tmp_path, monkeypatch):
+    """The guard: with internal SD 0.01 semopy's objective would be negative (it returns inf and reports success);
+    the fit is repeated with every outcome x10 until finite, and the estimates equal our own least squares."""
+    import bridge.families.cross_lagged.model as model
+
+    truth = PanelTruth(n_persons=200, n_waves=4, paths=((0.5, 0.1), (0.2, 0.4)), kind="clpm")
+    frame = simulate_panel(truth, 31)
+    spec = write_case(tmp_path, frame, clpm(("x", "y"), "person", "wave"))
+    monkeypatch.setattr(model, "INTERNAL_SD", 0.01)
+    rec = bridge.run(spec)
+    notes = [f.message for f in rec.findings if f.code == "fit-note"]
+    assert any("rescaled by 10" in n for n in notes), notes
+    assert rec.verdict is Verdict.AGREE
+    lags = frame.sort_values(["person", "wave"]).groupby("person")[["x", "y"]].shift(1)
+    keep = lags.notna().all(axis=1).to_numpy()
+    X = np.column_stack([np.ones(keep.sum()), lags.to_numpy()[keep]])
+    beta, *_ = np.linalg.lstsq(X, frame.sort_values(["person", "wave"])["x"].to_numpy()[keep], rcond=None)
+    assert rec.row("auto.x").sem.estimate == pytest.approx(beta[1], rel=EXACT)
+    assert rec.row("cross.y.x").sem.estimate == pytest.approx(beta[2], rel=EXACT)

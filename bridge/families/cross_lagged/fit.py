@@ -124,20 +124,36 @@ def _better_long(compiled: CompiledPanel, fits: list[EquationFit], sem_values: d
     return out
 
 
-def _semopy(compiled: CompiledPanel, model: PathModel, start_user: dict | None,
-            notes: list) -> tuple[CompiledPanel, SemopyRun]:
-    """semopy on the plan's internal scales; rescaled by 10 and refitted while its objective is not finite."""
-    for _ in range(RESCALE_TRIES):
-        start = None if start_user is None else _start(compiled, model, start_user)
-        run = run_semopy(model.text(), compiled.frame, start=start)
-        if np.isfinite(run.objective):
-            return compiled, run
-        notes.append("semopy's objective was not finite (it replaces a negative objective by inf and still "
-                     f"reports success) with internal scales {', '.join(f'{s:.3g}' for s in compiled.scales)}; "
-                     f"every outcome was rescaled by {RESCALE:g} and the fit repeated")
-        compiled = compiled.rescaled(RESCALE)
-    raise FitError("semopy's objective stayed non-finite after rescaling every outcome; the wide form could not "
-                   "be fitted")
+class _NotFinite(Exception):
+    """semopy returned a non-finite objective: the plan is fitted again on larger internal scales."""
+
+
+def _semopy(compiled: CompiledPanel, model: PathModel, start: dict | None) -> SemopyRun:
+    """One semopy fit on the plan's internal scales; a non-finite objective raises `_NotFinite`."""
+    run = run_semopy(model.text(), compiled.frame, start=start)
+    if not np.isfinite(run.objective):
+        raise _NotFinite
+    return run
+
+
+def _rescaling(fit):
+    """Run `fit(compiled, notes)`; while semopy's objective turns non-finite anywhere in it (semopy replaces a
+    negative objective by inf and still reports success), multiply every internal scale by 10 and start over."""
+    def guarded(compiled: CompiledPanel, *args, **kwargs):
+        notes: list[str] = []
+        for _ in range(RESCALE_TRIES):
+            try:
+                return fit(compiled, *args, notes=notes, **kwargs)
+            except _NotFinite:
+                notes.append("semopy's objective was not finite (it replaces a negative objective by inf and "
+                             "still reports success) with internal scales "
+                             f"{', '.join(f'{s:.3g}' for s in compiled.scales)}; every outcome was rescaled by "
+                             f"{RESCALE:g} and the fit repeated")
+                compiled = compiled.rescaled(RESCALE)
+        raise FitError("semopy's objective stayed non-finite after rescaling every outcome; the wide form could "
+                       "not be fitted")
+    guarded.__doc__ = fit.__doc__
+    return guarded
 
 
 def _start(compiled: CompiledPanel, model: PathModel, start_user: dict) -> dict[str, float]:
@@ -208,13 +224,13 @@ def _bounds(model: PathModel) -> tuple[np.ndarray, np.ndarray]:
 
 def _wide(compiled: CompiledPanel, model: PathModel, start_user: dict | None, notes: list, refits: list):
     """The wide form's best solution over several starts, certified (and repaired) by the referee."""
-    compiled, run = _semopy(compiled, model, start_user, notes)
+    run = _semopy(compiled, model, None if start_user is None else _start(compiled, model, start_user))
     referee = PathReferee(model, compiled.frame.to_numpy())
     first = run
     best, best_ll = run, referee.log_likelihood(run.values)
     for start in _alternative_starts(compiled, model, run):
-        other = run_semopy(model.text(), compiled.frame, start=start)
-        score = referee.log_likelihood(other.values) if np.isfinite(other.objective) else -np.inf
+        other = _semopy(compiled, model, start)
+        score = referee.log_likelihood(other.values)
         if score > best_ll + 1e-6 * max(1.0, abs(best_ll)):
             notes.append(f"another start of the wide form reached a log-likelihood {score - best_ll:.4g} higher")
             best, best_ll = other, score
@@ -238,9 +254,7 @@ def _repair_wide(compiled, model, referee, run, certificate, maximum, starts, re
     if certificate.passed or maximum is None:
         return run, certificate
     start = dict(zip(model.labels, map(float, maximum.point)))
-    again = run_semopy(model.text(), compiled.frame, start=start)
-    if not np.isfinite(again.objective):
-        return run, certificate
+    again = _semopy(compiled, model, start)
     shift = compiled.log_shift(compiled.panel.observed_by_outcome())
     before, after = referee.log_likelihood(run.values), referee.log_likelihood(again.values)
     kept = after >= before
@@ -252,9 +266,9 @@ def _repair_wide(compiled, model, referee, run, certificate, maximum, starts, re
     return again, new.with_repair("refitted from the referee's maximum")
 
 
-def fit_wide(compiled: CompiledPanel, model: PathModel) -> tuple[dict, dict, Certificate]:
+@_rescaling
+def fit_wide(compiled: CompiledPanel, model: PathModel, notes: list) -> tuple[dict, dict, Certificate]:
     """The wide form alone (guards, several starts, certificate): estimates and SEs by label, user's scale."""
-    notes: list[str] = []
     refits: list[Refit] = []
     compiled, referee, _, run, starts = _wide(compiled, model, None, notes, refits)
     certificate, maximum = _certificate(compiled, model, referee, run, starts)
@@ -319,18 +333,18 @@ def _long_certificate(compiled: CompiledPanel, eq, fit: EquationFit):
                    form=f"long ({outcome})", lower=lower, shift=shift)
 
 
+@_rescaling
 def fit_panel(compiled: CompiledPanel, model: PathModel, start: dict[str, float] | None = None,
-              prior: "PanelFits | None" = None) -> PanelFits:
+              prior: "PanelFits | None" = None, notes: list | None = None) -> PanelFits:
     """Both forms of one plan, each checked by the referee and refitted when another point scores higher.
 
     `start` (values by label on the user's scale, from a related fit) only speeds up the wide form's first
     fit; `prior` is a fit of the same data whose long form (already checked) is taken over with its refits.
     """
-    notes: list[str] = []
+    notes = [] if notes is None else notes
     refits: list[Refit] = []
-    scales = compiled.scales
     compiled, referee, first_sem, sem, starts = _wide(compiled, model, start, notes, refits)
-    if prior is not None and compiled.scales == scales:
+    if prior is not None and prior.compiled.scales == compiled.scales:
         first_long, long = list(prior.first_long_fits), list(prior.long_fits)
         refits = [r for r in prior.refits if r.library == "statsmodels"] + refits
     else:
@@ -341,9 +355,9 @@ def fit_panel(compiled: CompiledPanel, model: PathModel, start: dict[str, float]
                                   if k in sem.values}}
     before, rival = referee.log_likelihood(sem.values), referee.log_likelihood(candidate)
     if compiled.equivalent and rival > before + 1e-9:
-        again = run_semopy(model.text(), compiled.frame, start=candidate)   # polish: the long form is exact
+        again = _semopy(compiled, model, candidate)   # polish: the long form is exact
         after = referee.log_likelihood(again.values)
-        kept = bool(np.isfinite(again.objective) and after > before)
+        kept = bool(after > before)
         refits.append(Refit("semopy", f"the long-form solution scores {rival - before:.4g} higher under the "
                             "wide-form likelihood", before + shift, after + shift, kept))
         sem = again if kept else sem
