@@ -1,8 +1,8 @@
 """Fit one cross-lagged plan: the wide path model and the long lagged regressions, each checked by the referee.
 
-Guards (the same as for growth models): each outcome on its own internal scale; semopy's
-objective must be finite (semopy turns a negative objective into inf and still reports
-success), otherwise every internal scale is multiplied by 10 and the fit repeated; the
+Guards: each outcome on its own internal scale; semopy's objective must be finite (semopy
+turns a negative objective into inf and still reports success), otherwise every internal
+scale is multiplied by 10 and the plan refitted (the shared guard `bridge.fit.guard`); the
 wide form is started several times for the variants known to have local optima; each
 library's solution gets a certificate from the referee (`bridge.referee.certificate`) on
 the likelihood of the model that library fitted, and a solution that fails is refitted
@@ -15,8 +15,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ...compile.path import PathModel
-from ...errors import FitError
-from ...fit.sem import SemopyRun, run_semopy, semopy_log_likelihood
+from ...fit.guard import finite_semopy, rescaling
+from ...fit.sem import SemopyRun, semopy_log_likelihood
 from ...referee.adjudicate import LikelihoodCheck, Refit
 from ...referee.certificate import Certificate, certify
 from ...referee.likelihood import Referee
@@ -26,10 +26,6 @@ from .long_fit import EquationFit, fit_person_intercept, fit_pooled
 from .model import CompiledPanel
 from .referee import (equation_design, equation_parameters, equation_standard_errors, long_to_values,
                       path_standard_errors, values_to_equation)
-
-RESCALE = 10.0
-RESCALE_TRIES = 4
-
 
 @dataclass(frozen=True)
 class PanelSolution:
@@ -124,36 +120,9 @@ def _better_long(compiled: CompiledPanel, fits: list[EquationFit], sem_values: d
     return out
 
 
-class _NotFinite(Exception):
-    """semopy returned a non-finite objective: the plan is fitted again on larger internal scales."""
-
-
 def _semopy(compiled: CompiledPanel, model: PathModel, start: dict | None) -> SemopyRun:
-    """One semopy fit on the plan's internal scales; a non-finite objective raises `_NotFinite`."""
-    run = run_semopy(model.text(), compiled.frame, start=start)
-    if not np.isfinite(run.objective):
-        raise _NotFinite
-    return run
-
-
-def _rescaling(fit):
-    """Run `fit(compiled, notes)`; while semopy's objective turns non-finite anywhere in it (semopy replaces a
-    negative objective by inf and still reports success), multiply every internal scale by 10 and start over."""
-    def guarded(compiled: CompiledPanel, *args, **kwargs):
-        notes: list[str] = []
-        for _ in range(RESCALE_TRIES):
-            try:
-                return fit(compiled, *args, notes=notes, **kwargs)
-            except _NotFinite:
-                notes.append("semopy's objective was not finite (it replaces a negative objective by inf and "
-                             "still reports success) with internal scales "
-                             f"{', '.join(f'{s:.3g}' for s in compiled.scales)}; every outcome was rescaled by "
-                             f"{RESCALE:g} and the fit repeated")
-                compiled = compiled.rescaled(RESCALE)
-        raise FitError("semopy's objective stayed non-finite after rescaling every outcome; the wide form could "
-                       "not be fitted")
-    guarded.__doc__ = fit.__doc__
-    return guarded
+    """One semopy fit on the plan's internal scales (`NotFinite` when its objective is not finite)."""
+    return finite_semopy(model.text(), compiled.frame, start)
 
 
 def _start(compiled: CompiledPanel, model: PathModel, start_user: dict) -> dict[str, float]:
@@ -266,7 +235,7 @@ def _repair_wide(compiled, model, referee, run, certificate, maximum, starts, re
     return again, new.with_repair("refitted from the referee's maximum")
 
 
-@_rescaling
+@rescaling
 def fit_wide(compiled: CompiledPanel, model: PathModel, notes: list) -> tuple[dict, dict, Certificate]:
     """The wide form alone (guards, several starts, certificate): estimates and SEs by label, user's scale."""
     refits: list[Refit] = []
@@ -333,7 +302,7 @@ def _long_certificate(compiled: CompiledPanel, eq, fit: EquationFit):
                    form=f"long ({outcome})", lower=lower, shift=shift)
 
 
-@_rescaling
+@rescaling
 def fit_panel(compiled: CompiledPanel, model: PathModel, start: dict[str, float] | None = None,
               prior: "PanelFits | None" = None, notes: list | None = None) -> PanelFits:
     """Both forms of one plan, each checked by the referee and refitted when another point scores higher.
