@@ -369,3 +369,21 @@ def test_a_non_finite_objective_is_rescaled_and_refitted(tmp_path, monkeypatch):
     beta, *_ = np.linalg.lstsq(X, frame.sort_values(["person", "wave"])["x"].to_numpy()[keep], rcond=None)
     assert rec.row("auto.x").sem.estimate == pytest.approx(beta[1], rel=EXACT)
     assert rec.row("cross.y.x").sem.estimate == pytest.approx(beta[2], rel=EXACT)
+
+
+@pytest.mark.slow
+def test_report_names_the_library_used_and_the_terminal_says_the_likelihoods_differ(wages):
+    """Issue 10: the CLPM's long form is least squares, not a mixed model; its two log-likelihoods differ."""
+    from rich.console import Console
+
+    from bridge.reconcile.summary import report_content
+    from bridge.render import terminal
+    from bridge.render.report import report_html
+
+    _, rec = wages["own"]
+    assert rec.specifications["long_heading"].startswith("Long form: statsmodels OLS")
+    html = report_html(report_content(rec), {"path-diagram.svg": b"<svg/>", "standardised-paths.svg": b"<svg/>"})
+    assert "Long form: statsmodels OLS" in html and "MixedLM" not in html
+    console = Console(record=True, width=200)
+    terminal.render(rec, console)
+    assert "The two log-likelihoods are different quantities" in console.export_text()
