@@ -143,14 +143,15 @@ def misses(rec: bridge.Reconciliation, form: str, ref: dict, item: str) -> dict[
     """Quantities whose estimate misses the reference: key -> |gap| / allowed gap (> 1 fails).
 
     Allowed: 1e-5 relative, or 1e-3 of the reference SE where it has one (not on a boundary); a variance
-    pinned at exactly 0 gets the floor BOUND_FLOOR x the outcome's variance instead.
+    at 0 (within the floor) gets the floor BOUND_FLOOR x the outcome's variance instead.
     """
     floor = BOUND_FLOOR * float(np.var(frame(item)["y"]))
     out = {}
     assert {row.key for row in rec.quantities} == set(ref) - {"loglik"}
     for row in rec.quantities:
         value, se = ref[row.key]
-        allowed = max(REL * abs(value), SE_SHARE * se if np.isfinite(se) else 0.0, floor if value == 0 else 0.0)
+        allowed = max(REL * abs(value), SE_SHARE * se if np.isfinite(se) else 0.0,
+                      floor if abs(value) <= floor else 0.0)
         gap = abs(getattr(row, form).estimate - value)
         if gap > allowed:
             out[row.key] = gap / allowed
