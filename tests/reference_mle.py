@@ -30,6 +30,7 @@ from reference_panel import clpm_ols, ri_clpm_mle  # noqa: F401  (re-exported: t
 
 LOG_2PI = np.log(2.0 * np.pi)
 TOL_SCORE = 1e-8
+S2_FLOOR = 0.0     # lower bound of a residual variance (psd=False; V_i must stay positive definite)
 
 
 @dataclass(frozen=True)
@@ -151,7 +152,7 @@ def _theta_score(theta, M, ds2, q, psd):
 
 
 def _objective(design, reml, psd):
-    """Negative criterion and its gradient in theta (inf where some V_i is not positive definite)."""
+    """Negative criterion and its gradient in theta (a wall of 1e30 where some V_i is not positive definite)."""
     q = design.q
 
     def f(theta):
@@ -184,8 +185,6 @@ def _bounds(q, W, psd):
     rows, cols = _tril(q)
     return [(0.0, None) if r == c else (None, None) for r, c in zip(rows, cols)] + [(S2_FLOOR, None)] * W
 
-
-S2_FLOOR = 0.0     # lower bound of a residual variance (psd=False; V_i must stay positive definite)
 
 
 def _lower(theta, q):
@@ -272,7 +271,7 @@ def growth_mle(y, X, Z, person, reml: bool = False, psd: bool = True, waves=None
         res = optimize.minimize(f, start, jac=True, method=method, bounds=_bounds(q, design.W, psd),
                                 options={"gtol": 1e-10, "maxiter": 5000} if psd else
                                 {"ftol": 1e-15, "gtol": 1e-10, "maxiter": 5000})
-        if np.isfinite(res.fun) and (best is None or res.fun < best.fun):
+        if res.fun < 1e29 and (best is None or res.fun < best.fun):
             best = res
     theta, value, score_norm = _polish(f, best.x, q, psd)
     return _result(design, theta, q, psd, reml, score_norm)
