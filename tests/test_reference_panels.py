@@ -7,8 +7,8 @@
 - Dynamic panel, long form: each outcome's lagged regression with a random person intercept is a linear
   mixed model given the lags (common practice); its maximum comes from reference_mle.growth_mle with Z = 1.
   Simulated (seed 1, 500 persons, 4 waves) where the maximum keeps a small person variance (0.0028).
-  (`reference_panel.dynamic_panel_mle` also gives the wide form's maximum, restricted or relaxed, but at
-  10-30 s per fit it is left out of the suite.)
+- Dynamic panel, relaxed wide form with correlated equations (Allison, Williams & Moral-Benito 2017,
+  Socius 3; issue 10) on the same data: reference_panel.dynamic_panel_mle (2 starts, about 4-7 s).
 - RI-CLPM (Hamaker, Kuiper & Grasman 2015, Psychological Methods 20(1)) on a simulated 3-wave panel of 300
   persons (seed 3) whose likelihood has several local maxima: a first wide fit stops at an
   autoregression near 1 (log-likelihood -2587.71, measured with semopy on 2 December 2026) while the
