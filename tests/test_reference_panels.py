@@ -34,9 +34,6 @@ from reference_mle import growth_mle
 from reference_panel import clpm_ols, dynamic_panel_mle, ri_clpm_mle
 from test_exact_maxima import allowed_gap, open_data
 
-FAMILY = pytest.mark.xfail(strict=False, reason="awaits issue 10 (the cross-lagged family's repairs)")
-POLISH = pytest.mark.xfail(strict=False, reason="awaits issue 9 polishing (the long form on a boundary)")
-CERTIFY = pytest.mark.xfail(strict=False, reason="awaits issue 9 (certificates and several starts for the RI-CLPM)")
 _FOLDER = Path(tempfile.mkdtemp(prefix="reference_panels_"))
 WAVES = 7
 FIRST_YEAR = 1976
@@ -93,8 +90,7 @@ def test_pooled_least_squares_reference():
 def _clpm_params():
     for multiplier in (1.0, 1000.0):
         for form in ("sem", "mixed"):
-            marks = [FAMILY] if form == "sem" and multiplier == 1.0 else []   # today: the wide fit gives -inf
-            yield pytest.param(multiplier, form, marks=marks, id=f"lwage_x{multiplier:g}-{form}")
+            yield pytest.param(multiplier, form, id=f"lwage_x{multiplier:g}-{form}")
 
 
 @pytest.mark.parametrize("multiplier, form", list(_clpm_params()))
@@ -171,7 +167,6 @@ def _close(rec, ref, keys: dict[str, str]) -> dict[str, float]:
     return out
 
 
-@CERTIFY
 def test_ri_clpm_wide_solution_reaches_the_global_maximum_or_is_undecided():
     rec, ref = ri_case()
     if rec.verdict.value == "undecided":
@@ -180,14 +175,13 @@ def test_ri_clpm_wide_solution_reaches_the_global_maximum_or_is_undecided():
     assert _close(rec, ref, RI_KEYS) == {}
 
 
-@FAMILY
 def test_ri_clpm_documented_keys_match_the_reference():
     rec, ref = ri_case()
     assert _close(rec, ref, {**RI_KEYS, **RI_MORE_KEYS}) == {}
 
 
-@POLISH  # passes on main today; on the cross-lagged branch (panel, 2 December 2026) the long form's
-# person variances stop 1.28e-5 (x) and 1.35e-5 (y) relative short, as that branch's own certificate says
+# Measured on 2 December 2026 before the long form was refitted from the referee's maximum: its person
+# variances stopped 1.28e-5 (x) and 1.35e-5 (y) relative short.
 def test_ri_clpm_long_form_is_the_random_intercept_maximum():
     # The long form: lags centred on the person's mean, a random person intercept (docs/cross-lagged.md);
     # a linear mixed model given the centred lags (common practice), maximised by reference_mle.
@@ -199,7 +193,6 @@ def test_ri_clpm_long_form_is_the_random_intercept_maximum():
     assert _long_misses(rec, {key: ref[key] for key in keys}, floor=1e-7) == {}
 
 
-@CERTIFY
 def test_ri_clpm_verdict_never_explains_an_uncertified_local_maximum():
     # Issue 9: a solution 24 log-likelihood units below the maximum must not be "explained".
     rec, ref = ri_case()
@@ -269,11 +262,10 @@ def dynamic_case():
     return _dynamic_panel_run(frame, "wave", ["x", "y"], "dynamic_simulated"), values
 
 
-@POLISH
 def test_dynamic_panel_long_form_leaves_no_small_person_variance_at_zero():
-    # Measured on 2 December 2026: for outcome x the maximum has person variance 0.00279 (log-likelihood
-    # -2297.30045); the tool's long form returned the boundary 0 (pooled least squares, -2297.30178),
-    # autoregression 0.63997 against 0.63874.
+    # Measured on 2 December 2026 before the long form was refitted from the referee's maximum: for
+    # outcome x the maximum has person variance 0.00279 (log-likelihood -2297.30045); the long form
+    # returned the boundary 0 (pooled least squares, -2297.30178), autoregression 0.63997 against 0.63874.
     rec, values = dynamic_case()
     ref = _random_intercept_maxima(values, ["x", "y"])
     assert ref["var.trait.x"][0] == pytest.approx(0.00279, abs=1e-5)
@@ -286,13 +278,11 @@ DP_WIDE_KEYS = {"intercept.x": "intercept_x", "intercept.y": "intercept_y", "aut
                 "var.trait.y": "var_trait_y", "cov.trait": "cov_trait"}
 
 
-@FAMILY
 def test_dynamic_panel_relaxed_wide_form_is_the_full_information_maximum():
     # The relaxed wide form (Allison, Williams & Moral-Benito 2017, Socius 3) with correlated equations
     # (issue 10): person effects free to correlate with the first wave and with each other, residuals of
     # the two equations correlated. Independent maximum: reference_panel.dynamic_panel_mle (measured on
-    # the cross-lagged branch, 2 December 2026: every estimate within 1e-8 relative, log-likelihood
-    # -6078.24347 on both sides).
+    # 2 December 2026: every estimate within 1e-8 relative, log-likelihood -6078.24347 on both sides).
     rec, values = dynamic_case()
     ref = dynamic_panel_mle(values[:, :, 0], values[:, :, 1], relaxed=True, n_starts=2)  # 4 starts: the same
     assert ref.loglik == pytest.approx(-6078.24347, abs=1e-4)
