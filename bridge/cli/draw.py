@@ -6,8 +6,9 @@ from pathlib import Path
 
 import typer
 
-from .. import pipeline
-from .app import QUIET, SPEC, app, guarded, progress
+from .. import outputs, pipeline
+from ..spec import load
+from .app import QUIET, SPEC, app, guarded, inputs_of, run_job
 from .report import write_files
 
 
@@ -32,15 +33,18 @@ def draw_command(
 
     folder = out if out is not None else Path(f"{spec.stem}-figure")
     with guarded():
+        description = load(spec)
+        outputs.check_folder(folder, ("path-diagram.dot", "path-diagram.svg", "path-diagram.png"),
+                             inputs_of(description))
         if structure_only:
-            if pipeline.is_cross_lagged(spec):
-                compiled = pipeline.compile_cross_lagged(spec)
+            if pipeline.is_cross_lagged(description):
+                compiled = pipeline.compile_cross_lagged(description)
                 source = diagram.diagram_source(model_graph(compiled, compiled.relaxed or compiled.sem))
             else:
-                source = diagram.diagram_source(model_graph(pipeline.compile_description(spec).sem))
+                source = diagram.diagram_source(model_graph(pipeline.compile_description(description).sem))
             files = diagram.figure_files(source, "path-diagram")
         else:
-            content = report_content(pipeline.run(spec, progress=progress(quiet)))
+            content = report_content(run_job(description, quiet))
             if content.graph is None:
                 model_graph(None)   # raises: this model family has no path figure
             files = diagram.figure_files(diagram.diagram_source(content.graph, content.estimates, show_se=not no_se),
