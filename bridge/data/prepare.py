@@ -245,9 +245,10 @@ def _check_computable(desc: Description, times: np.ndarray, outcome: np.ndarray,
         raise DataError(f"{label}: the times are too large to compute with (up to {np.max(np.abs(times)):.3g}); "
                         "rescale them")
     spread, largest = float(np.ptp(times)), float(np.max(np.abs(times)))
-    if 0 < spread <= 1e-9 * largest:
-        raise DataError(f"{label}: the times differ only in their last digits (spread {spread:.3g} at "
-                        f"{largest:.3g}); set model.time_origin near the first time")
+    if 0 < spread <= 1e-6 * largest:   # e.g. Unix timestamps a few seconds apart
+        raise DataError(f"{label}: the times lie far from 0 compared with their spread ({spread:.3g} at "
+                        f"{largest:.3g}), too close to tell apart in a fit; set model.time_origin near the first "
+                        f"time (e.g. {np.min(times):.10g})")
     for name, form in (("sem", desc.sem_form), ("mixed", desc.mixed_form)):
         scaled = spread * (form.time_scale or 1.0)
         if spread > 0 and not 1e-100 < scaled < 1e100:
