@@ -87,7 +87,7 @@ class _Reader:
             return vocabulary(value)
         except ValueError:
             self.problem(key, "one of " + ", ".join(vocabulary.words()), value, _suggestion(value, vocabulary.words()))
-            return default
+            return None if default is None else vocabulary(default)
 
     def number(self, key: str, value: Any) -> float | None:
         try:
