@@ -34,21 +34,21 @@ def _fit_once(model: MixedLM, reml: bool, start):
 
 
 def fit_mixed(compiled: CompiledGrowth, reml: bool, start: GrowthParameters | None = None,
-              random_terms: int | None = None) -> FitOutcome:
+              keep: tuple[int, ...] | None = None) -> FitOutcome:
     """Fit the long form by ML or REML; refit from its own last point until the criterion stops improving.
 
-    `random_terms` fits a reduced model with only the first k random terms (the
-    rest held at zero), used to reach a maximum on the boundary.
+    `keep` fits a reduced model with only those random terms (by position; the others' variances
+    and covariances held at zero), used to reach a maximum on the boundary.
     """
     began = time.perf_counter()
     arrays = compiled.mixed
-    q = arrays.exog_re.shape[1] if random_terms is None else random_terms
-    model = MixedLM(arrays.endog, arrays.exog, arrays.groups, arrays.exog_re[:, :q])
+    keep = tuple(range(arrays.exog_re.shape[1])) if keep is None else tuple(keep)
+    model = MixedLM(arrays.endog, arrays.exog, arrays.groups, arrays.exog_re[:, list(keep)])
     messages: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            result = _fit_once(model, reml, None if start is None else _start(_reduced(start, q)))
+            result = _fit_once(model, reml, None if start is None else _start(_reduced(start, keep)))
             fits = 1
             while fits < MAX_FITS:
                 again = _fit_once(model, reml, result.params_object)
@@ -61,22 +61,23 @@ def fit_mixed(compiled: CompiledGrowth, reml: bool, start: GrowthParameters | No
         except (np.linalg.LinAlgError, ValueError) as exc:
             raise FitError(f"statsmodels MixedLM could not fit the long form ({exc})") from exc
     messages += [str(w.message).splitlines()[0] for w in caught]
-    params = _embed(_translate(result, compiled.n_waves), len(compiled.random_terms))
+    params = _embed(_translate(result, compiled.n_waves), len(compiled.random_terms), keep)
     own = float(result.llf) + (compiled.reml_log_jacobian() if reml else
                                compiled.scaling.log_jacobian(len(arrays.endog)))
     return FitOutcome(library="statsmodels", params=params, own_log_likelihood=own,
                       reported_success=bool(result.converged), messages=tuple(dict.fromkeys(messages)),
                       fits=fits, seconds=time.perf_counter() - began,
                       start="library default" if start is None else "warm start",
-                      notes=() if random_terms is None else (f"reduced model with {q} random term(s)",))
+                      notes=() if len(keep) == len(compiled.random_terms) else
+                      (f"reduced model without the random {', '.join(t.value for i, t in enumerate(compiled.random_terms) if i not in keep)} term",))
 
 
-def _reduced(params: GrowthParameters, q: int) -> GrowthParameters:
-    return GrowthParameters(params.fixed, params.cov[:q, :q], params.residual)
+def _reduced(params: GrowthParameters, keep: tuple[int, ...]) -> GrowthParameters:
+    return GrowthParameters(params.fixed, params.cov[np.ix_(keep, keep)], params.residual)
 
 
-def _embed(params: GrowthParameters, q: int) -> GrowthParameters:
+def _embed(params: GrowthParameters, q: int, keep: tuple[int, ...]) -> GrowthParameters:
+    """The reduced model's covariance placed at its terms' positions, zero for the terms left out."""
     cov = np.zeros((q, q))
-    k = params.cov.shape[0]
-    cov[:k, :k] = params.cov
+    cov[np.ix_(keep, keep)] = params.cov
     return GrowthParameters(params.fixed, cov, params.residual)

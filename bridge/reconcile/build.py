@@ -1,11 +1,13 @@
 """Assemble the reconciliation: the one object every renderer reads."""
 from __future__ import annotations
 
+from dataclasses import replace
+
 from ..compile.texts import pair_specifications
 from ..data import ShapedData
 from ..progress import Progress, quiet
 from .evaluation import Evaluation
-from .explain import explain
+from .explain import Explained, explain
 from .result import Finding, Reconciliation, Verdict
 from .tolerance import DEFAULT_TOLERANCE
 
@@ -20,6 +22,14 @@ def _findings(base: Evaluation) -> tuple[Finding, ...]:
     for fit in (adj.first_sem, adj.first_mixed, adj.sem, adj.mixed):
         out += [Finding("library-message", fit.library, m) for m in fit.messages]
         out += [Finding("fit-note", fit.library, n) for n in fit.notes]
+    for fit in (adj.sem, adj.mixed):
+        if not fit.reported_success:
+            out.append(Finding("not-converged", fit.library, f"{fit.library} did not report convergence for its "
+                                                             "final solution; the referee's certificate decides"))
+    for c in adj.certificates:
+        if not c.passed:
+            out.append(Finding("certificate-failed", c.library, f"the {c.form} form's solution is not a certified "
+                                                                f"maximum: {c.reason}"))
     for refit in adj.refits:
         result = "kept" if refit.kept else "not better; the first solution was kept"
         out.append(Finding("stopped-short", refit.library,
@@ -46,17 +56,43 @@ def _data_summary(shaped: ShapedData, base: Evaluation) -> dict:
 
 
 def overall_verdict(rows) -> Verdict:
-    """unexplained if any row is, else explained if any row is, else agree."""
+    """undecided if any row is, else unexplained if any row is, else explained if any row is, else agree."""
     verdicts = {r.verdict for r in rows}
+    if Verdict.UNDECIDED in verdicts:
+        return Verdict.UNDECIDED
     if Verdict.UNEXPLAINED in verdicts:
         return Verdict.UNEXPLAINED
     return Verdict.EXPLAINED if Verdict.EXPLAINED in verdicts else Verdict.AGREE
 
 
+UNDECIDED_NEXT_STEP = ("Check the model (too many random terms for the data, a badly scaled time variable) and "
+                       "run again with --debug to see the certificates in the JSON; simplifying the random part "
+                       "usually helps.")
+
+
+def undecided_reason(certificates) -> str:
+    """One line: which solution failed its certificate, why, and what the user can do next."""
+    failed = [c for c in certificates if not c.passed]
+    if not failed:
+        return ""
+    first = failed[0]
+    return f"the {first.form} form's solution ({first.library}) is not a certified maximum: {first.reason}. " \
+           + UNDECIDED_NEXT_STEP
+
+
+def _undecided(base: Evaluation) -> Explained:
+    rows = tuple(replace(r, verdict=Verdict.UNDECIDED) for r in base.rows)
+    return Explained(rows=rows, explanations=())
+
+
 def reconcile(shaped: ShapedData, base: Evaluation, progress: Progress = quiet) -> Reconciliation:
-    """Explain the base evaluation's differences and assemble the reconciliation."""
-    explained = explain(shaped, base, progress)
+    """Explain the base evaluation's differences and assemble the reconciliation.
+
+    Nothing is compared or explained unless both solutions are certified maxima: otherwise every
+    quantity, and the reconciliation, is `undecided`.
+    """
     adj = base.adjudication
+    explained = explain(shaped, base, progress) if adj.certified else _undecided(base)
     texts = pair_specifications(base.pair)
     return Reconciliation(
         description=shaped.description.label, verdict=overall_verdict(explained.rows), quantities=explained.rows,
@@ -67,4 +103,5 @@ def reconcile(shaped: ShapedData, base: Evaluation, progress: Progress = quiet) 
         refits=tuple({"library": r.library, "reason": r.reason, "before": float(r.before), "after": float(r.after),
                       "kept": bool(r.kept)} for r in adj.refits),
         findings=_findings(base), explanations=explained.explanations, data=_data_summary(shaped, base),
-        tolerance=DEFAULT_TOLERANCE.describe(), specifications=texts, caution=CAUTION, pair=base.pair)
+        tolerance=DEFAULT_TOLERANCE.describe(), specifications=texts, caution=CAUTION, pair=base.pair,
+        certificates=adj.certificates, undecided_reason=undecided_reason(adj.certificates))

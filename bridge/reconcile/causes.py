@@ -41,10 +41,18 @@ CATALOGUE: dict[str, Cause] = {c.key: c for c in (
           "other library's solution. sembridge refitted it from the better solution; the numbers shown are "
           "from the refit."),
     Cause("boundary", "a variance at or near its boundary",
-          "A random-effect variance is at or near zero, or the factor covariance is not positive "
-          "semidefinite. The mixed model keeps the person-effect covariance positive semidefinite; semopy "
-          "only keeps variances non-negative. Near the boundary the likelihood is flat, so two optimisers "
-          "can stop at different points with almost the same fit."),
+          "A random-effect variance is at or near zero. Near the boundary the likelihood is flat in that "
+          "direction, so two optimisers can stop at different points with almost the same fit. sembridge "
+          "refits both forms with that variance (and its covariances) fixed at zero; standard errors at the "
+          "boundary are not ordinary standard errors and are flagged."),
+    Cause("parameter-space", "a person-effect covariance the mixed model cannot represent",
+          "The SEM keeps each variance non-negative but lets the covariance matrix of the growth factors be "
+          "indefinite (for example two variances of zero with a non-zero covariance); the mixed model keeps "
+          "that matrix positive semidefinite, as a covariance of person effects must be. Both libraries then "
+          "found the maximum of their own parameter space. sembridge maximises the SEM's own model over "
+          "positive semidefinite matrices with its referee: when that maximum equals the mixed solution, the "
+          "spaces are the whole difference. An indefinite solution usually means the data carry too little "
+          "information about individual differences in growth for this model."),
     Cause("time-coding", "different time origin or units",
           "The two forms code time differently (another zero point or another unit). The intercept then "
           "refers to another moment and the slope to another unit, so the numbers differ while the fitted "

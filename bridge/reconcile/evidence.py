@@ -4,6 +4,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
 from scipy.stats import chi2
 
 from ..compile import compile_growth
@@ -117,6 +118,21 @@ def boundary(ctx: Context) -> tuple[str, dict]:
     return text, {"terms_removed": dropped, "log_likelihood_with": ll_base, "log_likelihood_without": ll_bound}
 
 
+def parameter_space(ctx: Context) -> tuple[str, dict]:
+    """The SEM's indefinite maximum beside the referee's maximum over positive semidefinite matrices."""
+    unconstrained = ctx.alone.adjudication.sem
+    constrained = ctx.full.adjudication.sem
+    eigen = [float(v) for v in np.linalg.eigvalsh(unconstrained.params.cov)]
+    text = (f"The SEM's person-effect covariance matrix is not positive semidefinite (smallest eigenvalue "
+            f"{min(eigen):.4g} on the internal scale); no covariance of person effects can have that. The "
+            f"referee's maximum of the same SEM over positive semidefinite matrices has log-likelihood "
+            f"{constrained.own_log_likelihood:.6f} against {unconstrained.own_log_likelihood:.6f} unconstrained "
+            f"(difference {unconstrained.own_log_likelihood - constrained.own_log_likelihood:.4g}), and there the "
+            f"two forms meet. {_gap_sentence(ctx)}")
+    return text, {"eigenvalues_internal": eigen, "log_likelihood_unconstrained": unconstrained.own_log_likelihood,
+                  "log_likelihood_constrained": constrained.own_log_likelihood}
+
+
 def optimizer_evidence(base: Evaluation) -> tuple[str, dict]:
     refits = [r for r in base.adjudication.refits if r.kept]
     parts = [f"{r.library} reported success, but {r.reason}; refitted from there, its criterion went from "
@@ -151,4 +167,4 @@ def standard_error_evidence(base: Evaluation, rows: dict[str, QuantityRow]):
 
 EVIDENCE = {"estimation-method": estimation_method, "residual-structure": residual_structure,
             "missing-data": missing_data, "time-binning": time_binning, "time-coding": time_coding,
-            "boundary": boundary}
+            "boundary": boundary, "parameter-space": parameter_space}

@@ -9,6 +9,7 @@ import numpy as np
 from ..compile import Plan, TimeSource
 from ..data import Design
 from ..spec import Method, Missing, Residuals, Term
+from ..referee.spaces import is_psd
 from .evaluation import Evaluation
 
 BOUNDARY_RELATIVE = 1e-3  # a variance below this share of the largest one (internal scale) is at its boundary
@@ -22,17 +23,19 @@ class Harmoniser:
 
 
 def boundary_terms(base: Evaluation) -> tuple[Term, ...]:
-    """Random terms whose variance is at or near zero (or whose covariance is not PSD) in either solution."""
+    """Random terms whose variance is at or near zero in either solution (fixed at zero by the refit).
+
+    An indefinite covariance matrix is not a boundary of the SEM's space: it is the `parameter-space` cause.
+    """
     terms = base.pair.sem.random_terms
     if len(terms) < 2:
         return ()
     flagged: set[Term] = set()
-    for params in (base.adjudication.sem.params, base.adjudication.mixed.params):
+    solutions = (base.adjudication.sem.params, base.adjudication.mixed.params)
+    for params in (p for p in solutions if is_psd(p.cov)):
         diag = np.diag(params.cov)
         top = max(float(diag.max()), 1e-12)
         flagged |= {t for t, d in zip(terms, diag) if d <= BOUNDARY_RELATIVE * top}
-        if np.linalg.eigvalsh(params.cov).min() < -1e-8 * top and not flagged:
-            flagged.add(terms[-1])
     kept = [t for t in terms if t not in flagged]
     return tuple(t for t in terms if t in flagged) if kept else ()
 

@@ -12,13 +12,17 @@ class Verdict(Words):
     AGREE = "agree"
     EXPLAINED = "explained"
     UNEXPLAINED = "unexplained"
+    UNDECIDED = "undecided"     # a solution could not be certified as a maximum: nothing can be compared
 
+
+EXIT_CODES = {Verdict.AGREE: 0, Verdict.EXPLAINED: 0, Verdict.UNEXPLAINED: 3, Verdict.UNDECIDED: 4}
 
 
 @dataclass(frozen=True)
 class Estimate:
     estimate: float
     se: float
+    se_flag: str = ""   # "boundary": the solution is on the boundary of its space; the SE is not an ordinary one
 
 
 @dataclass(frozen=True)
@@ -49,6 +53,7 @@ class Explanation:
     evidence: str
     why: str
     details: dict
+    note: bool = False  # a cause that no refit can remove: reported beside the gap, never changes a verdict
 
 
 @dataclass(frozen=True)
@@ -80,11 +85,13 @@ class Reconciliation:
     pair: Any = field(default=None, compare=False, repr=False)  # the CompiledPair: model structure and data
     # cross-lagged family: every parameter of both forms on the user's scale (`reconcile.panel_fit.PanelSolution`)
     solution: Any = field(default=None, compare=False, repr=False)
-
+    certificates: tuple = ()    # `referee.certificate.Certificate` of every library solution
+    undecided_reason: str = ""  # one line with the next step, when the verdict is undecided
 
     @property
     def exit_code(self) -> int:
-        return 3 if self.verdict is Verdict.UNEXPLAINED else 0
+        """0 agree or explained, 3 unexplained, 4 undecided (docs/commands.md)."""
+        return EXIT_CODES[self.verdict]
 
     def row(self, key: Key) -> QuantityRow:
         return next(r for r in self.quantities if r.key == key)

@@ -54,6 +54,7 @@ class VarianceComponent:
     se: float
     sd: float | None = None
     correlation: float | None = None
+    se_flag: str = ""    # "boundary": the solution is on the boundary of its space; the SE is not an ordinary one
 
 
 @dataclass(frozen=True)
@@ -136,17 +137,18 @@ def _variance_components(rec: Reconciliation, values: dict[Key, Estimate]) -> tu
             if first is second and var_key(first) in values:
                 v = values[var_key(first)]
                 out.append(VarianceComponent(var_key(first), first.value, "variance", v.estimate, v.se,
-                                             sd=math.sqrt(v.estimate) if v.estimate >= 0 else None))
+                                             sd=math.sqrt(v.estimate) if v.estimate >= 0 else None,
+                                             se_flag=v.se_flag))
             elif first is not second and cov_key(first, second) in values:
                 c = values[cov_key(first, second)]
                 a, b = values.get(var_key(first)), values.get(var_key(second))
                 r = _correlation(c.estimate, a.estimate, b.estimate) if a and b else None
                 out.append(VarianceComponent(cov_key(first, second), f"{first.value}, {second.value}", "covariance",
-                                             c.estimate, c.se, correlation=r))
+                                             c.estimate, c.se, correlation=r, se_flag=c.se_flag))
     if "var.residual" in values:
         v = values["var.residual"]
         out.append(VarianceComponent("var.residual", "residual", "residual", v.estimate, v.se,
-                                     sd=math.sqrt(v.estimate) if v.estimate >= 0 else None))
+                                     sd=math.sqrt(v.estimate) if v.estimate >= 0 else None, se_flag=v.se_flag))
     return tuple(out)
 
 

@@ -7,8 +7,10 @@ import numpy as np
 
 from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key, LongDesign, cov_key, var_key
 from ..fit import FitOutcome, fit_mixed, fit_sem
+from .certificate import Certificate
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
+from .spaces import certify_growth, is_psd, space_of
 
 NEAR_SINGULAR = 1e-4  # smallest/largest eigenvalue of the person-effect covariance
 
@@ -51,11 +53,12 @@ class Adjudication:
     log_likelihood: dict[str, float]
     sem_se: dict[Key, float]
     mixed_se: dict[Key, float]
+    certificates: tuple[Certificate, ...] = ()
 
-
-def _positive_semidefinite(cov) -> bool:
-    eig = np.linalg.eigvalsh(cov)
-    return bool(eig.min() >= -1e-10 * max(float(np.abs(eig).max()), 1e-12))
+    @property
+    def certified(self) -> bool:
+        """Whether both final solutions are certified maxima of the models their libraries fitted."""
+        return bool(self.certificates) and all(c.passed for c in self.certificates)
 
 
 def _tolerance(value: float) -> float:
@@ -94,7 +97,7 @@ class _Judge:
     def better(self, library: str, current: FitOutcome, candidate: GrowthParameters, reason: str, refit) -> FitOutcome:
         """Refit `library` from `candidate` when the candidate scores higher under its own criterion."""
         score = self.sem_score if library == "semopy" else self.mixed_score
-        if library == "statsmodels" and not _positive_semidefinite(candidate.cov):
+        if library == "statsmodels" and not is_psd(candidate.cov):
             return current  # outside the mixed model's parameter space: a boundary matter, not a short stop
         before, rival = score(current.params), score(candidate)
         if not rival > before + _tolerance(before):
@@ -105,16 +108,56 @@ class _Judge:
         self.refits.append(Refit(library, reason.format(gap=rival - before), before, after, kept))
         return new if kept else current
 
+    def certified(self, library: str, compiled: CompiledGrowth, fit: FitOutcome, refit,
+                  attempts: int = 2) -> tuple[FitOutcome, Certificate]:
+        """Certify a solution in its library's own space; polish it (refit from the referee's maximum) until it passes.
+
+        The library refits from the referee's maximum and its own numbers are kept, so the
+        reported estimates stay the library's; the certificate of the last solution is returned.
+        """
+        wide = library == "semopy"
+        referee = self.sem_referee if wide else self.mixed_referee
+        space = space_of(compiled, referee, fit.params, reml=False if wide else self.reml, psd=not wide,
+                         equal_residuals=compiled.equal_residuals if wide else True)
+        form = "wide" if wide else "long"
+        certificate, best = certify_growth(space, compiled, fit.params, fit.own_log_likelihood, library, form)
+        repairs: list[str] = []
+        for _ in range(attempts):
+            if certificate.passed or best is None:
+                break
+            before = space.full(fit.params) + space.shift
+            new = refit(best)
+            new_certificate, new_best = certify_growth(space, compiled, new.params, new.own_log_likelihood,
+                                                       library, form)
+            after = space.full(new.params) + space.shift
+            kept = bool(new_certificate.passed or after > before)
+            self.refits.append(Refit(library, f"the referee's certificate failed ({certificate.reason}); refitted "
+                                     "from the referee's maximum", before, after, kept))
+            repairs.append(f"refitted from the referee's maximum: criterion {before:.6f} -> {after:.6f}")
+            if kept:
+                fit, certificate, best = new, new_certificate, new_best
+        for text in repairs:
+            certificate = certificate.with_repair(text)
+        return fit, certificate
+
     def exact_log_likelihood(self, compiled: CompiledGrowth, params: GrowthParameters) -> float:
         referee = self.referee(compiled.exact_design)
         return referee.log_likelihood(params) + compiled.scaling.log_jacobian(referee.n_obs)
 
 
 def _boundary_candidate(compiled: CompiledGrowth, mixed: FitOutcome, reml: bool) -> FitOutcome | None:
-    eig = np.linalg.eigvalsh(mixed.params.cov)
-    if len(eig) < 2 or (eig.min() > NEAR_SINGULAR * max(eig.max(), 1e-12) and mixed.reported_success):
+    """The mixed model with the variance on its boundary fixed at zero, when one variance is (nearly) zero.
+
+    Only a variance at zero can be fixed that way; a singular matrix of another kind (a correlation of
+    +/-1) is left to the certificate, whose Cholesky space contains it.
+    """
+    diag = np.diag(mixed.params.cov)
+    if len(diag) < 2:
         return None
-    return fit_mixed(compiled, reml, random_terms=1)
+    low = [i for i, d in enumerate(diag) if d <= NEAR_SINGULAR * max(float(diag.max()), 1e-12)]
+    if not low or len(low) == len(diag):
+        return None
+    return fit_mixed(compiled, reml, keep=tuple(i for i in range(len(diag)) if i not in low))
 
 
 def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudication:
@@ -129,7 +172,7 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
     boundary = _boundary_candidate(pair.mixed, mixed, reml)
     if boundary is not None:
         mixed = judge.better("statsmodels", mixed, boundary.params,
-                             "the boundary solution (person-effect covariance of rank 1) scores {gap:.4g} higher",
+                             "the solution with the boundary variance fixed at zero scores {gap:.4g} higher",
                              lambda p: fit_mixed(pair.mixed, reml, start=p))
     if pair.comparable:
         sem = judge.better("semopy", sem, mixed.params,
@@ -139,6 +182,9 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
         mixed = judge.better("statsmodels", mixed, sem.params,
                              "the semopy solution scores {gap:.4g} higher under the long-form criterion",
                              lambda p: fit_mixed(pair.mixed, reml, start=p))
+    sem, sem_certificate = judge.certified("semopy", pair.sem, sem, lambda p: fit_sem(pair.sem, start=p))
+    mixed, mixed_certificate = judge.certified("statsmodels", pair.mixed, mixed,
+                                               lambda p: fit_mixed(pair.mixed, reml, start=p))
     checks = (LikelihoodCheck("semopy", "ml", sem.own_log_likelihood, judge.sem_score(sem.params)),
               LikelihoodCheck("statsmodels", "reml" if reml else "ml", mixed.own_log_likelihood,
                               judge.mixed_score(mixed.params)))
@@ -150,7 +196,8 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
                         refits=tuple(judge.refits), checks=checks, log_likelihood=log_likelihood,
                         sem_se=standard_errors(pair.sem, judge.sem_referee, sem.params, pair.sem.equal_residuals,
                                                False),
-                        mixed_se=standard_errors(pair.mixed, judge.mixed_referee, mixed.params, True, reml))
+                        mixed_se=standard_errors(pair.mixed, judge.mixed_referee, mixed.params, True, reml),
+                        certificates=(sem_certificate, mixed_certificate))
 
 
 def variance_keys(compiled: CompiledGrowth, equal_residuals: bool) -> list[list[Key]]:

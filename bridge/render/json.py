@@ -19,11 +19,18 @@ def _plain(value):
         return {str(k): _plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
         return [_plain(v) for v in value]
-    if isinstance(value, bool) or value is None or isinstance(value, str):
+    if isinstance(value, (bool, int, str)) or value is None:
         return value
     if isinstance(value, (int, float)) or hasattr(value, "__float__"):
         return _number(float(value))
     return str(value)
+
+
+def _estimate(e) -> dict:
+    out = {"estimate": _number(e.estimate), "se": _number(e.se)}
+    if e.se_flag:
+        out["se_flag"] = e.se_flag
+    return out
 
 
 def to_dict(rec: Reconciliation) -> dict:
@@ -38,11 +45,12 @@ def to_dict(rec: Reconciliation) -> dict:
         "referee_checks": list(rec.referee_checks),
         "refits": list(rec.refits),
         "quantities": [{"key": r.key, "wide_name": r.wide_name, "long_name": r.long_name,
-                        "sem": {"estimate": _number(r.sem.estimate), "se": _number(r.sem.se)},
-                        "mixed": {"estimate": _number(r.mixed.estimate), "se": _number(r.mixed.se)},
+                        "sem": _estimate(r.sem), "mixed": _estimate(r.mixed),
                         "difference": _number(r.difference), "allowed_gap": _number(r.allowed_gap),
                         "verdict": r.verdict.value, "causes": list(r.causes)} for r in rec.quantities],
-        "explanations": [{"cause": e.cause, "title": e.title, "quantities": list(e.quantities),
+        "certificates": [_plain(c.to_dict()) for c in rec.certificates],
+        "undecided_reason": rec.undecided_reason or None,
+        "explanations": [{"cause": e.cause, "kind": "note" if e.note else "explanation", "title": e.title, "quantities": list(e.quantities),
                           "gap_before": {k: _number(v) for k, v in e.gap_before.items()},
                           "gap_after": {k: _number(v) for k, v in e.gap_after.items()},
                           "evidence": e.evidence, "why": e.why, "details": _plain(e.details)}

@@ -24,7 +24,7 @@ h1 { font-size: 1.5rem; margin: 0 0 .3rem; } h2 { font-size: 1.2rem; margin-top:
      border-bottom: 1px solid #d5dbe1; padding-bottom: .2rem; } h3 { font-size: 1rem; margin: 1.2rem 0 .4rem; }
 .verdict { display: inline-block; padding: .15rem .6rem; border-radius: .3rem; font-weight: 600; }
 .verdict-agree { background: #dcefe0; } .verdict-explained { background: #f6ecd0; }
-.verdict-unexplained { background: #f5d6d3; }
+.verdict-unexplained { background: #f5d6d3; } .verdict-undecided { background: #e6dcf2; }
 .side { display: flex; flex-wrap: wrap; gap: 1.5rem; align-items: flex-start; }
 .side figure { flex: 1 1 520px; margin: 0; } .side .tables { flex: 1 1 420px; }
 figure img { max-width: 100%; height: auto; border: 1px solid #e3e7eb; background: #fff; }
@@ -54,7 +54,9 @@ def _header(content: ReportContent) -> str:
     rec = content.reconciliation
     return (f"<header>\n<h1>One model in two frameworks: {_e(rec.description)}</h1>\n"
             f'<p><span class="verdict verdict-{_e(rec.verdict.value)}">verdict: {_e(rec.verdict.value)}</span> '
-            f"{len(rec.quantities)} quantities compared; tolerance: {_e(rec.tolerance)}.</p>\n</header>\n")
+            f"{len(rec.quantities)} quantities compared; tolerance: {_e(rec.tolerance)}.</p>\n"
+            + (f'<p class="caution">Why undecided: {_e(rec.undecided_reason)}</p>\n' if rec.undecided_reason else "")
+            + "</header>\n")
 
 
 _GROWTH_CAPTION = (
@@ -128,9 +130,23 @@ def _timing_section(content: ReportContent) -> str:
         pairs.append(("fitting time", f"semopy {d['seconds']['sem']:.2f} s, statsmodels {d['seconds']['mixed']:.2f} s"))
     pairs += [(f"predictor {p['key']}", f"1 when {p['column']} is {p['level']!r}, 0 at the reference level "
                                         f"{p['reference']!r}") for p in d.get("predictors", ()) if p.get("level")]
-    pairs += [(f"referee check ({c['library']}, {c['criterion']})",
-               f"library {c['library_value']:.6f}, referee {c['referee_value']:.6f}") for c in rec.referee_checks]
+    pairs += [(f"certificate ({c.library}, {c.form} form, {c.criterion})",
+               f"library {c.reported:.6f}, referee {c.referee:.6f}, the referee's own maximum {c.gain:.2g} higher: "
+               + ("a certified maximum" if c.passed else f"not certified ({c.reason})")) for c in rec.certificates]
     return f'<section id="timing">\n<h2>Timing and data</h2>\n{_dl(pairs)}</section>\n'
+
+
+def _gap_table(e) -> str:
+    """Gaps before and after the refit that proves a cause; a note has no refit, so only the gap is shown."""
+    if e.note:
+        gaps = "".join(f"<tr><td>{_e(k)}</td><td class=\"num\">{_e(number(e.gap_before.get(k)))}</td></tr>\n"
+                       for k in e.quantities)
+        return (f'<table class="grid"><thead><tr><th>quantity</th><th class="num">observed gap (no refit removes '
+                f'it)</th></tr></thead>\n<tbody>\n{gaps}</tbody></table>\n')
+    gaps = "".join(f"<tr><td>{_e(k)}</td><td class=\"num\">{_e(number(e.gap_before.get(k)))}</td>"
+                   f"<td class=\"num\">{_e(number(e.gap_after.get(k)))}</td></tr>\n" for k in e.quantities)
+    return (f'<table class="grid"><thead><tr><th>quantity</th><th class="num">gap with the cause</th>'
+            f'<th class="num">gap after the refit</th></tr></thead>\n<tbody>\n{gaps}</tbody></table>\n')
 
 
 def _explanations_section(content: ReportContent) -> str:
@@ -140,11 +156,8 @@ def _explanations_section(content: ReportContent) -> str:
                 "<p>Every quantity agrees; there is nothing to explain.</p>\n</section>\n")
     parts = ['<section id="explanations">\n<h2>Why the numbers differ</h2>\n']
     for e in rec.explanations:
-        gaps = "".join(f"<tr><td>{_e(k)}</td><td class=\"num\">{_e(number(e.gap_before.get(k)))}</td>"
-                       f"<td class=\"num\">{_e(number(e.gap_after.get(k)))}</td></tr>\n" for k in e.quantities)
-        parts.append(f"<h3>{_e(e.title)} [{_e(e.cause)}]</h3>\n<p>{_e(e.why)}</p>\n<p>Evidence: {_e(e.evidence)}</p>\n"
-                     f'<table class="grid"><thead><tr><th>quantity</th><th class="num">gap with the cause</th>'
-                     f'<th class="num">gap after the refit</th></tr></thead>\n<tbody>\n{gaps}</tbody></table>\n')
+        parts.append(f"<h3>{_e(e.title)} [{_e(e.cause)}]{' (note)' if e.note else ''}</h3>\n<p>{_e(e.why)}</p>\n"
+                     f"<p>Evidence: {_e(e.evidence)}</p>\n{_gap_table(e)}")
     if rec.findings:
         parts.append("<h3>Notes</h3>\n<ul>\n" + "".join(f"<li>{_e(f.library or 'sembridge')}: {_e(f.message)}</li>\n"
                                                          for f in rec.findings) + "</ul>\n")

@@ -71,12 +71,19 @@ def fixed_effects_grid(summary: MixedModelSummary) -> Grid:
                  "standard errors from the referee.",))
 
 
+BOUNDARY_NOTE = ("*: the solution lies on the boundary of the parameter space (a variance at zero or a singular "
+                 "person-effect covariance); this standard error is not an ordinary one.")
+
+
 def variance_grid(summary: MixedModelSummary) -> Grid:
+    flagged = any(v.se_flag for v in summary.variances)
     return Grid("variance-components", "Long form (mixed model): person effects and residual",
                 ("component", "kind", "estimate", "SE", "SD", "correlation"),
                 (TEXT, TEXT, NUMBER, NUMBER, NUMBER, NUMBER),
-                tuple((v.name, v.kind, v.estimate, v.se, v.sd, v.correlation) for v in summary.variances),
-                ("SD: square root of a variance; correlation: a covariance over the product of the two SDs.",))
+                tuple((v.name + (" *" if v.se_flag else ""), v.kind, v.estimate, v.se, v.sd, v.correlation)
+                      for v in summary.variances),
+                ("SD: square root of a variance; correlation: a covariance over the product of the two SDs.",)
+                + ((BOUNDARY_NOTE,) if flagged else ()))
 
 
 def fit_grid(summary: MixedModelSummary) -> Grid:

@@ -9,13 +9,19 @@ from rich.text import Text
 
 from ..reconcile import Reconciliation, Verdict
 
-_STYLE = {Verdict.AGREE: "green", Verdict.EXPLAINED: "yellow", Verdict.UNEXPLAINED: "bold red"}
+_STYLE = {Verdict.AGREE: "green", Verdict.EXPLAINED: "yellow", Verdict.UNEXPLAINED: "bold red",
+          Verdict.UNDECIDED: "bold magenta"}
 
 
 def _fmt(value: float) -> str:
     if value is None or not math.isfinite(value):
         return "n/a"
     return f"{value:.4g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.2e}"
+
+
+def _se(estimate) -> str:
+    """A standard error, marked when the solution is on a boundary (not an ordinary SE there)."""
+    return _fmt(estimate.se) + ("*" if estimate.se_flag else "")
 
 
 def quantity_table(rec: Reconciliation) -> Table:
@@ -26,8 +32,8 @@ def quantity_table(rec: Reconciliation) -> Table:
         table.add_column(heading, justify="right", no_wrap=True)
     table.add_column("verdict", no_wrap=True)
     for row in rec.quantities:
-        table.add_row(Text(row.key), _fmt(row.sem.estimate), _fmt(row.sem.se), _fmt(row.mixed.estimate),
-                      _fmt(row.mixed.se), _fmt(row.difference), Text(row.verdict.value, style=_STYLE[row.verdict]))
+        table.add_row(Text(row.key), _fmt(row.sem.estimate), _se(row.sem), _fmt(row.mixed.estimate),
+                      _se(row.mixed), _fmt(row.difference), Text(row.verdict.value, style=_STYLE[row.verdict]))
     return table
 
 
@@ -45,9 +51,10 @@ def _summary_lines(rec: Reconciliation) -> list[str]:
                          f"level {p['reference']!r}")
     lines.append(f"Log-likelihood: semopy {ll['sem']:.6f}, statsmodels {ll['mixed']:.6f}; referee on exact times "
                  f"at the SEM solution {ll['referee_at_sem']:.6f}, at the mixed solution {ll['referee_at_mixed']:.6f}")
-    for c in rec.referee_checks:
-        lines.append(f"Referee check ({c['library']}, {c['criterion']}): library {c['library_value']:.6f}, "
-                     f"referee {c['referee_value']:.6f}, relative difference {c['relative_difference']:.1e}")
+    for c in rec.certificates:
+        status = "certified maximum" if c.passed else f"NOT certified: {c.reason}"
+        lines.append(f"Certificate ({c.library}, {c.form} form, {c.criterion}): library {c.reported:.6f}, referee "
+                     f"{c.referee:.6f}; the referee's own maximum is {c.gain:.2g} higher; {status}")
     return lines
 
 
@@ -55,14 +62,27 @@ def render(rec: Reconciliation, console: Console) -> None:
     """Print the reconciliation: summary, table, findings, verdict, caution."""
     console.print(Group(*(Text(line) for line in _summary_lines(rec))))
     console.print(quantity_table(rec))
-    if rec.explanations:
+    if any(r.sem.se_flag or r.mixed.se_flag for r in rec.quantities):
+        console.print(Text("* at the boundary of the parameter space: not an ordinary standard error.", style="dim"))
+    proved = [e for e in rec.explanations if not e.note]
+    if proved:
         console.print(Text("Why the numbers differ", style="bold"))
-    for e in rec.explanations:
+    for e in proved:
         console.print(Text(f"- {e.title} [{e.cause}] affects {', '.join(e.quantities)}.", style="bold"))
+        console.print(Text(f"  {e.why}"))
+        console.print(Text(f"  Evidence: {e.evidence}"))
+    notes = [e for e in rec.explanations if e.note]
+    if notes:
+        console.print(Text("Notes (no refit removes these; they change no verdict)", style="bold"))
+    for e in notes:
+        console.print(Text(f"- {e.title} [{e.cause}] concerns {', '.join(e.quantities) or 'no quantity'}.",
+                           style="bold"))
         console.print(Text(f"  {e.why}"))
         console.print(Text(f"  Evidence: {e.evidence}"))
     for finding in rec.findings:
         console.print(Text(f"Note ({finding.library or 'sembridge'}): {finding.message}"))
     console.print(Text(f"Tolerance: {rec.tolerance}.", style="dim"))
     console.print(Text(f"Overall verdict: {rec.verdict.value}", style=_STYLE[rec.verdict]))
+    if rec.undecided_reason:
+        console.print(Text(f"Why undecided: {rec.undecided_reason}"))
     console.print(Text(f"Caution: {rec.caution}", style="italic"))
