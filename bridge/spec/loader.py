@@ -28,6 +28,8 @@ _KEYS = {
     "forms.mixed": {"missing", "time_origin", "time_scale"},
 }
 _MISSING = object()
+#: At most this many problems are listed (then how many more there are).
+MAX_PROBLEMS = 12
 #: A form's time scale outside this range makes its times underflow or overflow.
 TIME_SCALE_RANGE = (1e-12, 1e12)
 
@@ -42,9 +44,12 @@ class _Reader:
     """Walks the parsed YAML, remembering where each key stood."""
 
     def __init__(self, label: str, tree: Any, lines: dict[str, int]):
-        self.label, self.tree, self.lines, self.problems = label, tree, lines, []
+        self.label, self.tree, self.lines, self.problems, self.count = label, tree, lines, [], 0
 
     def problem(self, key: str, expected: str, found: Any, hint: str = "") -> None:
+        self.count += 1
+        if len(self.problems) >= MAX_PROBLEMS:
+            return
         where = f" (line {self.lines[key]})" if key in self.lines else ""
         value = "nothing" if found is _MISSING else shown(found)
         self.problems.append(f"{cut(key, 80) or 'the file'}{where}: expected {expected}, found {value}{hint}")
@@ -67,8 +72,8 @@ class _Reader:
         for key in node:
             if key not in _KEYS[section]:
                 full = f"{section}.{key}" if section else str(key)
-                self.problem(full, "one of " + ", ".join(sorted(_KEYS[section])), key,
-                             _suggestion(key, _KEYS[section]))
+                hint = _suggestion(key, _KEYS[section]) if len(self.problems) < MAX_PROBLEMS else ""
+                self.problem(full, "one of " + ", ".join(sorted(_KEYS[section])), key, hint)
 
     def text(self, key: str, required: bool = True) -> str | None:
         value = self.get(key)
@@ -254,7 +259,10 @@ def load(path: str | Path) -> Description:
     path = Path(path)
     tree, lines, duplicates = read_yaml(path)
     reader = _Reader(path.name, tree, lines)
-    reader.problems.extend(duplicates)
+    for duplicate in duplicates:
+        reader.count += 1
+        if len(reader.problems) < MAX_PROBLEMS:
+            reader.problems.append(duplicate)
     for section in _KEYS:
         reader.check_keys(section)
     data = _data_section(reader, path.parent)
@@ -262,6 +270,7 @@ def load(path: str | Path) -> Description:
     estimation = _estimation_section(reader)
     sem_form, mixed_form = _form(reader, "sem"), _form(reader, "mixed")
     if reader.problems or data is None:  # every path that leaves data unset has recorded a problem
-        raise DescriptionError(f"{path.name}: " + "; ".join(reader.problems))
+        more = reader.count - len(reader.problems)
+        raise DescriptionError(f"{path.name}: " + "; ".join(reader.problems) + (f"; and {more} more" if more else ""))
     return Description(data=data, model=model, estimation=estimation, sem_form=sem_form, mixed_form=mixed_form,
                        source=_resolved(path) or path)

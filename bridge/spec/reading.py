@@ -16,16 +16,39 @@ import yaml
 from ..errors import DescriptionError, cut, shown
 
 #: Limits far above any real description (the longest has a few hundred entries).
-MAX_BYTES = 1_000_000
-MAX_NODES = 50_000
+MAX_BYTES = 256_000
+MAX_NODES = 20_000
 MAX_DEPTH = 40
+#: Below this many possible openings the C composer's recursion is safely shallow: no scan is needed.
+_SHALLOW = 5_000
 
 _LOADER = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
 _MERGE = "tag:yaml.org,2002:merge"
 
 
+_OPENING = (yaml.BlockMappingStartToken, yaml.BlockSequenceStartToken, yaml.FlowMappingStartToken,
+            yaml.FlowSequenceStartToken)
+_CLOSING = (yaml.BlockEndToken, yaml.FlowMappingEndToken, yaml.FlowSequenceEndToken)
+
+
 class _TooLarge(Exception):
     pass
+
+
+def _check_nesting(text: str) -> None:
+    """Refuse deep nesting before composing: the C reader's composer recurses once per level and would
+    overflow the C stack on a file of 100,000 nested brackets (the scanner does not recurse). The
+    pure-Python reader raises RecursionError instead, so it needs no scan."""
+    if _LOADER is yaml.SafeLoader or sum(text.count(c) for c in "[{-?:\n") < _SHALLOW:
+        return
+    depth = 0
+    for token in yaml.scan(text, Loader=_LOADER):
+        if isinstance(token, _OPENING):
+            depth += 1
+            if depth > MAX_DEPTH:
+                raise _TooLarge(f"nested more than {MAX_DEPTH} levels deep")
+        elif isinstance(token, _CLOSING):
+            depth -= 1
 
 
 def _read_text(path: Path) -> str:
@@ -58,6 +81,8 @@ def _children(node: yaml.Node) -> list[yaml.Node]:
 
 def _measure(node: yaml.Node, sizes: dict[int, int], open_nodes: set[int], depth: int) -> int:
     """Number of nodes once every alias is expanded (memoised per shared node)."""
+    if isinstance(node, yaml.ScalarNode):
+        return 1
     if depth > MAX_DEPTH:
         raise _TooLarge(f"nested more than {MAX_DEPTH} levels deep")
     if id(node) in sizes:
@@ -111,17 +136,18 @@ def read_yaml(path: Path) -> tuple[Any, dict[str, int], list[str]]:
     """The parsed description, the line of every key path, and the keys written twice (as problems)."""
     text = _read_text(path)
     try:
+        _check_nesting(text)
         root = yaml.compose(text, Loader=_LOADER)
+        if root is not None:
+            _measure(root, {}, set(), 0)
     except yaml.YAMLError as exc:
         raise _yaml_problem(path, exc) from exc
     except RecursionError:
         raise DescriptionError(f"{path.name}: the description is nested more than {MAX_DEPTH} levels deep") from None
-    if root is None:
-        raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found an empty file")
-    try:
-        _measure(root, {}, set(), 0)
     except _TooLarge as exc:
         raise DescriptionError(f"{path.name}: the description is {exc}; refused") from None
+    if root is None:
+        raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found an empty file")
     duplicates: list[str] = []
     _duplicates(root, set(), duplicates)
     try:
