@@ -218,6 +218,15 @@ def simulate_into(files: dict[str, str]) -> Callable[[Path], list[str]]:
     return build
 
 
+def simulate_with_population(text: str, at: str = "population.yaml") -> Callable[[Path], list[str]]:
+    def build(folder: Path) -> list[str]:
+        (folder / at).parent.mkdir(exist_ok=True)
+        (folder / at).write_text(text)
+        return ["simulate", str(demo_files.GROWTH_DESCRIPTION), "--population", at, "--replications", "2",
+                "--workers", "1", "--out", "study", "--quiet"]
+    return build
+
+
 def rounding_onto_description(folder: Path) -> list[str]:
     write(folder, growth_frame(), description())
     return ["rounding", "model.yaml", "--json", "model.yaml"]
@@ -308,6 +317,11 @@ CASES: dict[str, Case] = {
     "timing-figure-onto-data": Case(lambda f: timing_of(["a", "b", "c"])(f)[:-2] + ["--figure", "model.csv"], BAD,
                                     (r"input file",)),
     "rounding-json-onto-description": Case(rounding_onto_description, BAD, (r"input file",)),
+    "population-inside-the-output-folder": Case(simulate_with_population(
+        demo_files.GROWTH_POPULATION.read_text(), "study/summary.json"), BAD, (r"input file",)),
+    "population-alias-bomb": Case(simulate_with_population(alias_bomb()), BAD, (r"population", r"aliases")),
+    "population-duplicate-key": Case(simulate_with_population(demo_files.GROWTH_POPULATION.read_text() + "truth: {}\n"),
+                                     BAD, (r"'truth'.*written twice",)),
     "simulate-into-foreign-folder": Case(simulate_into({"notes.md": "mine"}), BAD, (r"did not write",)),
     # 2. data read as written
     "ids-and-levels-read-as-text": Case(text_ids, OK, check=lambda f, r: (persons_used(20)(f, r),

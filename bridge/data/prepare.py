@@ -234,6 +234,10 @@ def _check_enough(desc: Description, long: pd.DataFrame, timing: Timing, label: 
         raise DataError(f"{label}: found {long['_person'].nunique()} person(s); at least 3 are needed")
 
 
+#: Times farther from their origin than this many times their spread (Unix timestamps, say) are refused.
+FAR_FROM_ORIGIN = 1000.0
+
+
 def _check_computable(desc: Description, times: np.ndarray, outcome: np.ndarray, label: str) -> None:
     """DataError (with a hint) for values no fit can compute with: spreads that overflow, times too close."""
     with np.errstate(all="ignore"):
@@ -244,12 +248,15 @@ def _check_computable(desc: Description, times: np.ndarray, outcome: np.ndarray,
     if not np.isfinite(time_sd):
         raise DataError(f"{label}: the times are too large to compute with (up to {np.max(np.abs(times)):.3g}); "
                         "rescale them")
-    spread, largest = float(np.ptp(times)), float(np.max(np.abs(times)))
-    if 0 < spread <= 1e-6 * largest:   # e.g. Unix timestamps a few seconds apart
-        raise DataError(f"{label}: the times lie far from 0 compared with their spread ({spread:.3g} at "
-                        f"{largest:.3g}), too close to tell apart in a fit; set model.time_origin near the first "
-                        f"time (e.g. {np.min(times):.10g})")
+    spread = float(np.ptp(times))
     for name, form in (("sem", desc.sem_form), ("mixed", desc.mixed_form)):
+        origin = form.time_origin if form.time_origin is not None else desc.model.time_origin
+        farthest = float(np.max(np.abs(times - origin)))
+        if 0 < spread * FAR_FROM_ORIGIN <= farthest:   # e.g. Unix timestamps
+            raise DataError(f"{label}: the times lie far from the time origin {origin:g} compared with their spread "
+                            f"({spread:.3g} at {farthest:.3g}), so the intercept would be extrapolated far outside "
+                            f"the data and the fit is numerically unreliable; set model.time_origin near the first "
+                            f"time (e.g. {np.min(times):.10g})")
         scaled = spread * (form.time_scale or 1.0)
         if spread > 0 and not 1e-100 < scaled < 1e100:
             raise DataError(f"{label}: forms.{name}.time_scale {form.time_scale:g} makes the time range "

@@ -258,6 +258,9 @@ def load(path: str | Path) -> Description:
     """Read and validate a YAML model description; raise one DescriptionError listing every problem."""
     path = Path(path)
     tree, lines, duplicates = read_yaml(path)
+    if not isinstance(tree, dict):
+        found = "an empty file" if tree is None else type(tree).__name__
+        raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found {found}")
     reader = _Reader(path.name, tree, lines)
     for duplicate in duplicates:
         reader.count += 1

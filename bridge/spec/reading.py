@@ -51,24 +51,24 @@ def _check_nesting(text: str) -> None:
             depth -= 1
 
 
-def _read_text(path: Path) -> str:
+def _read_text(path: Path, what: str) -> str:
     try:
         if path.is_dir():
-            raise DescriptionError(f"{path}: is a folder, not a description file")
+            raise DescriptionError(f"{path}: is a folder, not a {what} file")
         with open(path, "rb") as handle:
             raw = handle.read(MAX_BYTES + 1)
     except FileNotFoundError:
-        raise DescriptionError(f"{path}: description file not found") from None
+        raise DescriptionError(f"{path}: {what} file not found") from None
     except (OSError, RuntimeError) as exc:
         reason = getattr(exc, "strerror", None) or exc.__class__.__name__
-        raise DescriptionError(f"{path}: cannot read the description ({reason})") from exc
+        raise DescriptionError(f"{path}: cannot read the {what} ({reason})") from exc
     if len(raw) > MAX_BYTES:
-        raise DescriptionError(f"{path.name}: the description is larger than {MAX_BYTES // 1000} kB; a model "
-                               "description is a short file")
+        raise DescriptionError(f"{path.name}: the {what} is larger than {MAX_BYTES // 1000} kB; it should be a "
+                               "short file")
     try:
         return raw.decode("utf-8")
     except UnicodeDecodeError:
-        raise DescriptionError(f"{path.name}: cannot read the description (not UTF-8 text)") from None
+        raise DescriptionError(f"{path.name}: cannot read the {what} (not UTF-8 text)") from None
 
 
 def _children(node: yaml.Node) -> list[yaml.Node]:
@@ -132,9 +132,12 @@ def _yaml_problem(path: Path, exc: yaml.YAMLError) -> DescriptionError:
     return DescriptionError(f"{path.name}: not valid YAML{where}: {cut(problem, 120)}")
 
 
-def read_yaml(path: Path) -> tuple[Any, dict[str, int], list[str]]:
-    """The parsed description, the line of every key path, and the keys written twice (as problems)."""
-    text = _read_text(path)
+def read_yaml(path: Path, what: str = "description") -> tuple[Any, dict[str, int], list[str]]:
+    """The parsed file, the line of every key path, and the keys written twice (as problems).
+
+    `what` names the file in messages ("description", "population"). An empty file gives None.
+    """
+    text = _read_text(path, what)
     try:
         _check_nesting(text)
         root = yaml.compose(text, Loader=_LOADER)
@@ -143,11 +146,11 @@ def read_yaml(path: Path) -> tuple[Any, dict[str, int], list[str]]:
     except yaml.YAMLError as exc:
         raise _yaml_problem(path, exc) from exc
     except RecursionError:
-        raise DescriptionError(f"{path.name}: the description is nested more than {MAX_DEPTH} levels deep") from None
+        raise DescriptionError(f"{path.name}: the {what} is nested more than {MAX_DEPTH} levels deep") from None
     except _TooLarge as exc:
-        raise DescriptionError(f"{path.name}: the description is {exc}; refused") from None
+        raise DescriptionError(f"{path.name}: the {what} is {exc}; refused") from None
     if root is None:
-        raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found an empty file")
+        return None, {}, []
     duplicates: list[str] = []
     _duplicates(root, set(), duplicates)
     try:
@@ -156,6 +159,4 @@ def read_yaml(path: Path) -> tuple[Any, dict[str, int], list[str]]:
         raise _yaml_problem(path, exc) from exc
     except (ValueError, OverflowError) as exc:   # e.g. an integer with more digits than Python converts
         raise DescriptionError(f"{path.name}: a value cannot be read ({cut(str(exc), 80)})") from None
-    if not isinstance(tree, dict):
-        raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found {type(tree).__name__}")
     return tree, _line_map(root), duplicates
