@@ -309,6 +309,9 @@ CASES: dict[str, Case] = {
                                             replaced=("out/path-diagram.dot", f"out/{MANIFEST}"),
                                             check=lambda f, r: (f / "out" / "path-diagram.dot").read_text()
                                             .startswith("digraph")),
+    "report-keeps-edited-table-before-fitting": Case(folder_with({"fit.csv": "mine"}, {"fit.csv": "theirs"},
+                                                             ("report", "model.yaml", "--out", "out", "--quiet")),
+                                                 BAD, (r"out/fit\.csv", r"changed since")),
     "demo-keeps-edited-description": Case(demo_folder(edit=True, manifest=True), BAD, (r"sight_reading\.yaml",
                                                                                       r"changed since")),
     "demo-into-foreign-folder": Case(demo_folder(edit=True, manifest=False), BAD, (r"did not write",)),

@@ -9,7 +9,7 @@ import typer
 from .. import outputs, pipeline
 from ..spec import load
 from .app import QUIET, SPEC, app, guarded, inputs_of, run_job
-from .report import write_files
+from .report import REPORT_FILES, write_files
 
 
 @app.command("draw")
@@ -34,7 +34,7 @@ def draw_command(
     folder = out if out is not None else Path(f"{spec.stem}-figure")
     with guarded():
         description = load(spec)
-        outputs.check_folder(folder, ("path-diagram.dot", "path-diagram.svg", "path-diagram.png"),
+        outputs.check_folder(folder, [n for n in REPORT_FILES if n.startswith(("path-diagram", "standardised"))],
                              inputs_of(description))
         if structure_only:
             if pipeline.is_cross_lagged(description):

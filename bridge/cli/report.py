@@ -10,8 +10,14 @@ from ..reconcile import Reconciliation
 from ..spec import load
 from .app import QUIET, SPEC, app, guarded, inputs_of, run_job
 
-#: The files every report holds (the others depend on the model family); checked before fitting.
-REPORT_FILES = ("report.html", "result.json", "correspondence.md", "correspondence.tex", "correspondence.csv")
+#: Every file a report may hold (docs/figures.md), checked before fitting: none may be a file sembridge
+#: did not write.
+REPORT_FILES = ("report.html", "result.json", "correspondence.md", "correspondence.tex", "correspondence.csv",
+                *(f"path-diagram.{ext}" for ext in ("dot", "svg", "png", "pdf")), "trajectories.svg",
+                "trajectories.png", "mixed-model.md", "mixed-model.tex", "fixed-effects.csv",
+                "variance-components.csv", "fit.csv", "standardised-paths.svg", "standardised-paths.png",
+                "lagged-regressions.md", "lagged-regressions.tex", "lagged-coefficients.csv", "lagged-variances.csv",
+                "lagged-fit.csv")
 
 
 def write_files(folder: Path, files: dict[str, bytes]) -> None:
