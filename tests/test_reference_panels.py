@@ -27,8 +27,6 @@ from conftest import write_case
 from reference_panel import clpm_ols, ri_clpm_mle
 from test_exact_maxima import REL, SE_SHARE, open_data
 
-FAMILY = pytest.mark.xfail(strict=False, reason="awaits issue 10 (outcomes on any scale, full RI-CLPM keys)")
-CERTIFY = pytest.mark.xfail(strict=False, reason="awaits issue 9 (certificates and several starts for the RI-CLPM)")
 _FOLDER = Path(tempfile.mkdtemp(prefix="reference_panels_"))
 WAVES = 7
 FIRST_YEAR = 1976
@@ -85,8 +83,7 @@ def test_pooled_least_squares_reference():
 def _clpm_params():
     for multiplier in (1.0, 1000.0):
         for form in ("sem", "mixed"):
-            marks = [FAMILY] if form == "sem" and multiplier == 1.0 else []   # today: the wide fit gives -inf
-            yield pytest.param(multiplier, form, marks=marks, id=f"lwage_x{multiplier:g}-{form}")
+            yield pytest.param(multiplier, form, id=f"lwage_x{multiplier:g}-{form}")
 
 
 @pytest.mark.parametrize("multiplier, form", list(_clpm_params()))
@@ -163,7 +160,6 @@ def _close(rec, ref, keys: dict[str, str]) -> dict[str, float]:
     return out
 
 
-@CERTIFY
 def test_ri_clpm_wide_solution_reaches_the_global_maximum_or_is_undecided():
     rec, ref = ri_case()
     if rec.verdict.value == "undecided":
@@ -172,7 +168,6 @@ def test_ri_clpm_wide_solution_reaches_the_global_maximum_or_is_undecided():
     assert _close(rec, ref, RI_KEYS) == {}
 
 
-@FAMILY
 def test_ri_clpm_documented_keys_match_the_reference():
     rec, ref = ri_case()
     if rec.verdict.value == "undecided":
@@ -180,7 +175,6 @@ def test_ri_clpm_documented_keys_match_the_reference():
     assert _close(rec, ref, {**RI_KEYS, **RI_MORE_KEYS}) == {}
 
 
-@CERTIFY
 def test_ri_clpm_verdict_never_explains_an_uncertified_local_maximum():
     # Issue 9: a solution 24 log-likelihood units below the maximum must not be "explained".
     rec, ref = ri_case()

@@ -37,11 +37,7 @@ def draw_command(
         outputs.check_folder(folder, [n for n in REPORT_FILES if n.startswith(("path-diagram", "standardised"))],
                              inputs_of(description))
         if structure_only:
-            if pipeline.is_cross_lagged(description):
-                compiled = pipeline.compile_cross_lagged(description)
-                source = diagram.diagram_source(model_graph(compiled, compiled.relaxed or compiled.sem))
-            else:
-                source = diagram.diagram_source(model_graph(pipeline.compile_description(description).sem))
+            source = diagram.diagram_source(pipeline.structure_graph(description))
             files = diagram.figure_files(source, "path-diagram")
         else:
             content = report_content(run_job(description, quiet))
