@@ -24,3 +24,19 @@ class FitError(SembridgeError):
 
 class SembridgeWarning(UserWarning):
     """Warnings raised by sembridge itself (library warnings are captured as findings)."""
+
+
+class OutputError(SembridgeError):
+    """An output cannot be written where asked (an input file, a folder sembridge did not write, no room)."""
+
+
+def cut(text: str, limit: int = 60) -> str:
+    """`text` on one line, cut to `limit` characters (with `...`)."""
+    text = " ".join(str(text).split())
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
+def shown(value: object, limit: int = 60) -> str:
+    """`repr(value)` cut to `limit` characters, for quoting user values in one-line messages."""
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 3] + "..."

@@ -293,7 +293,7 @@ def test_simulate_command_writes_results_and_keeps_inputs(tmp_path):
                                  "--seed", "5", "--out", str(out), "--csv"])
     assert result.exit_code == 0, result.output
     assert {p.name for p in out.iterdir()} == {"replications.csv", "summary.md", "summary.csv", "summary.json",
-                                               "summary.png"}
+                                               "summary.png", ".sembridge-manifest.json"}   # bridge/outputs.py
     raw = pd.read_csv(out / "replications.csv")
     assert sorted(raw["replication"].unique()) == [0, 1] and set(raw["framework"]) == {"sem", "mixed"}
     saved = json.loads((out / "summary.json").read_text())

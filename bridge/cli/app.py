@@ -4,11 +4,15 @@ from __future__ import annotations
 import sys
 import time
 from contextlib import contextmanager
+from dataclasses import replace
 from pathlib import Path
 
+import numpy as np
 import typer
 from rich.console import Console
 
+from .. import outputs
+from ..capture import library_messages
 from ..errors import SembridgeError
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
@@ -25,21 +29,58 @@ def _main(debug: bool = typer.Option(False, "--debug", help="Show full traceback
     _state["debug"] = debug
 
 
+MESSAGE_LIMIT = 400
+#: Numerical failures that only degenerate data cause (the library found no matrix it could factor).
+DEGENERATE = ("the data leave no model that can be fitted ({}): look for persons whose data are all identical, "
+              "extreme values, or times far from 0 such as Unix timestamps (then set model.time_origin)")
+
+
+def one_line(message: str, limit: int = MESSAGE_LIMIT) -> str:
+    """The message on one line of at most `limit` characters."""
+    text = " ".join(str(message).split())
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
 def fail(message: str, code: int = 2) -> None:
     """Print one line on standard error and leave with `code`."""
-    typer.echo(f"sembridge: {message}", err=True)
+    typer.echo(one_line(f"sembridge: {message}"), err=True)
     raise typer.Exit(code)
 
 
 @contextmanager
 def guarded():
-    """Turn user-caused errors into one line and exit code 2 (a traceback only with --debug)."""
+    """Turn user-caused errors into one line and exit code 2 (a traceback only with --debug).
+
+    Numerical breakdowns of the libraries on degenerate data (a singular matrix, an overflow) are the
+    data's problem too: exit 2 with a hint.
+    """
     try:
         yield
     except SembridgeError as exc:
         if _state["debug"]:
             raise
-        fail(str(exc).replace("\n", " "))
+        fail(str(exc))
+    except (np.linalg.LinAlgError, FloatingPointError) as exc:
+        if _state["debug"]:
+            raise
+        fail(DEGENERATE.format(one_line(f"{exc.__class__.__name__}: {exc}", 80)))
+
+
+def inputs_of(description) -> list[Path]:
+    """The files a description reads: itself and its data file."""
+    return [p for p in (description.source, description.data.path) if p is not None]
+
+
+def run_job(description, quiet: bool):
+    """The main job on a loaded description; library warnings and log lines become findings."""
+    from .. import pipeline
+    from ..reconcile.result import Finding
+
+    with library_messages() as messages:
+        result = pipeline.run(description, progress=progress(quiet))
+    known = {f.message for f in result.findings}
+    extra = tuple(Finding("library-message", None, m) for m in messages if m not in known)
+    return replace(result, findings=result.findings + extra) if extra else result
 
 
 def progress(quiet: bool):
@@ -65,9 +106,6 @@ def stdout_console() -> Console:
 
 
 def write_text(path: Path, text: str) -> None:
-    """Write an output file; a folder that cannot be written is the user's problem (exit 2)."""
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        fail(f"cannot write {path} ({exc.strerror or exc})")
+    """Write an output file atomically; a file that cannot be written is the user's problem (exit 2)."""
+    with guarded():
+        outputs.write_file(path, text)

@@ -6,9 +6,10 @@ from pathlib import Path
 
 import typer
 
-from .. import pipeline
-from .app import QUIET, SPEC, app, guarded, progress
-from .report import write_files
+from .. import outputs, pipeline
+from ..spec import load
+from .app import QUIET, SPEC, app, guarded, inputs_of, run_job
+from .report import REPORT_FILES, write_files
 
 
 @app.command("draw")
@@ -32,11 +33,14 @@ def draw_command(
 
     folder = out if out is not None else Path(f"{spec.stem}-figure")
     with guarded():
+        description = load(spec)
+        outputs.check_folder(folder, [n for n in REPORT_FILES if n.startswith(("path-diagram", "standardised"))],
+                             inputs_of(description))
         if structure_only:
-            source = diagram.diagram_source(pipeline.structure_graph(spec))
+            source = diagram.diagram_source(pipeline.structure_graph(description))
             files = diagram.figure_files(source, "path-diagram")
         else:
-            content = report_content(pipeline.run(spec, progress=progress(quiet)))
+            content = report_content(run_job(description, quiet))
             if content.graph is None:
                 model_graph(None)   # raises: this model family has no path figure
             files = diagram.figure_files(diagram.diagram_source(content.graph, content.estimates, show_se=not no_se),

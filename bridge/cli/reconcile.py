@@ -5,10 +5,11 @@ from pathlib import Path
 
 import typer
 
-from .. import pipeline
+from .. import outputs
 from ..render import json as json_render
 from ..render import terminal
-from .app import QUIET, SPEC, app, guarded, progress, stdout_console, write_text
+from ..spec import load
+from .app import QUIET, SPEC, app, guarded, inputs_of, run_job, stdout_console, write_text
 
 
 @app.command("reconcile")
@@ -20,7 +21,9 @@ def reconcile_command(
     """Fit both forms, check them with the referee, compare every quantity and explain every difference."""
     json_only = json_file is not None and str(json_file) == "-"
     with guarded():
-        result = pipeline.run(spec, progress=progress(quiet or json_only))
+        description = load(spec)
+        outputs.check_file(json_file, inputs_of(description))
+        result = run_job(description, quiet or json_only)
     if json_only:
         typer.echo(json_render.to_json(result), nl=False)
     else:

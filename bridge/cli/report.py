@@ -5,19 +5,26 @@ from pathlib import Path
 
 import typer
 
-from .. import pipeline
+from .. import outputs
 from ..reconcile import Reconciliation
-from .app import QUIET, SPEC, app, fail, guarded, progress
+from ..spec import load
+from .app import QUIET, SPEC, app, guarded, inputs_of, run_job
+
+#: Every file a report may hold (docs/figures.md), checked before fitting: none may be a file sembridge
+#: did not write.
+REPORT_FILES = ("report.html", "result.json", "correspondence.md", "correspondence.tex", "correspondence.csv",
+                *(f"path-diagram.{ext}" for ext in ("dot", "svg", "png", "pdf")), "trajectories.svg",
+                "trajectories.png", "mixed-model.md", "mixed-model.tex", "fixed-effects.csv",
+                "variance-components.csv", "fit.csv", "standardised-paths.svg", "standardised-paths.png",
+                "lagged-regressions.md", "lagged-regressions.tex", "lagged-coefficients.csv", "lagged-variances.csv",
+                "lagged-fit.csv")
 
 
 def write_files(folder: Path, files: dict[str, bytes]) -> None:
-    """Write output files into `folder` (a folder that cannot be written is the user's problem: exit 2)."""
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        for name, data in files.items():
-            (folder / name).write_bytes(data)
-    except OSError as exc:
-        fail(f"cannot write into {folder} ({exc.strerror or exc})")
+    """Write output files into `folder` atomically, with the manifest (a folder that cannot be written, or
+    holds files sembridge did not write, is the user's problem: exit 2)."""
+    with guarded():
+        outputs.write_folder(folder, files)
 
 
 def write_report(rec: Reconciliation, folder: Path) -> Path:
@@ -35,13 +42,15 @@ def write_report(rec: Reconciliation, folder: Path) -> Path:
 def report_command(
     spec: Path = SPEC,
     out: Path = typer.Option(None, "--out", help="Folder for the report and its files (default: SPEC's name "
-                                                 "with '-report')."),
+                                                 "with '-report'); it must be new, empty, or an earlier report."),
     quiet: bool = QUIET,
 ) -> None:
     """Fit, reconcile and write the HTML report with the path figure, the tables and the explanations."""
     folder = out if out is not None else Path(f"{spec.stem}-report")
     with guarded():
-        result = pipeline.run(spec, progress=progress(quiet))
+        description = load(spec)
+        outputs.check_folder(folder, REPORT_FILES, inputs_of(description))
+        result = run_job(description, quiet)
     page = write_report(result, folder)
     typer.echo(f"Report: {page}\nFigures, tables and the JSON result: {folder}")
     raise typer.Exit(result.exit_code)

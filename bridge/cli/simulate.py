@@ -1,6 +1,7 @@
 """`sembridge simulate SPEC --population FILE --replications R`: a Monte Carlo study of both forms."""
 from __future__ import annotations
 
+import io
 import json
 import os
 import sys
@@ -10,8 +11,9 @@ import typer
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
-from .app import SPEC, app, guarded, stdout_console, write_text
-from .timing import json_safe, refuse_inputs, writing
+from .. import outputs
+from .app import SPEC, app, fail, guarded, stdout_console
+from .timing import json_safe
 
 OUTPUTS = ("replications.parquet", "replications.csv", "summary.md", "summary.csv", "summary.json", "summary.png")
 
@@ -61,20 +63,37 @@ def simulate_command(
     from ..render import simulation as render
     from ..timing.summary import replications_frame, summarise, summary_frame
 
-    refuse_inputs([out / name for name in OUTPUTS], [spec, population])
     with guarded():
+        outputs.check_folder(out, OUTPUTS, [spec, population])
         desc, truth, reps = _run(spec, population, replications, workers or os.cpu_count() or 1, scheduler, seed,
                                  quiet)
     summary = summarise(reps, desc.label, truth.source, seed)
     raw = out / ("replications.csv" if csv else "replications.parquet")
-    with writing(raw):
-        frame = replications_frame(reps)
-        frame.to_csv(raw, index=False) if csv else frame.to_parquet(raw, index=False)
-    write_text(out / "summary.md", render.markdown_table(summary) + "\n")
-    write_text(out / "summary.csv", summary_frame(summary).to_csv(index=False))
-    write_text(out / "summary.json", json.dumps(json_safe(summary.to_dict()), indent=2, allow_nan=False) + "\n")
-    with writing(out / "summary.png"):
-        render.figure(summary, out / "summary.png")
+    with guarded():
+        outputs.write_folder(out, _files(summary, replications_frame(reps), summary_frame(summary), raw.name))
     stdout_console().print(render.terminal_table(summary))
     typer.echo(f"\nPer-replication results: {raw}\nSummary: {out / 'summary.md'}, {out / 'summary.csv'}, "
                f"{out / 'summary.json'}\nFigure: {out / 'summary.png'}")
+    failed = [rep for rep in reps if rep.verdict == "failed"]
+    if failed:
+        fail(f"{len(failed)} of {len(reps)} replications failed; the first (seed {failed[0].seed}): "
+             f"{failed[0].error}")
+
+
+def _files(summary, per_replication, per_quantity, raw_name: str) -> dict[str, bytes]:
+    """Every output of a study, as bytes (written together, atomically, with the folder's manifest)."""
+    from ..render import simulation as render
+    from ..render.formats import spreadsheet_safe
+
+    figure = io.BytesIO()
+    render.figure(summary, figure)
+    if raw_name.endswith(".csv"):
+        raw = spreadsheet_safe(per_replication).to_csv(index=False).encode("utf-8")
+    else:
+        buffer = io.BytesIO()
+        per_replication.to_parquet(buffer, index=False)
+        raw = buffer.getvalue()
+    return {raw_name: raw, "summary.md": (render.markdown_table(summary) + "\n").encode("utf-8"),
+            "summary.csv": spreadsheet_safe(per_quantity).to_csv(index=False).encode("utf-8"),
+            "summary.json": (json.dumps(json_safe(summary.to_dict()), indent=2, allow_nan=False) + "\n").encode(),
+            "summary.png": figure.getvalue()}

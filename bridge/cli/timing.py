@@ -8,8 +8,10 @@ from pathlib import Path
 
 import typer
 
+from .. import outputs
 from ..errors import DataError
-from .app import QUIET, SPEC, app, fail, guarded, progress, stdout_console, write_text
+from ..spec import load
+from .app import QUIET, SPEC, app, guarded, inputs_of, progress, stdout_console, write_text
 
 JSON = typer.Option(None, "--json", help="Also write the result as JSON to this file ('-' for stdout only).")
 FIGURE = typer.Option(None, "--figure", help="Also draw the figure into this PNG file.")
@@ -29,21 +31,19 @@ def parse_waves(text: str | None) -> tuple[float, ...] | None:
     return tuple(values)
 
 
-def refuse_inputs(outputs: list[Path | None], inputs: list[Path]) -> None:
-    """Never write over an input file."""
-    for out in outputs:
-        if out is not None and str(out) != "-" and any(out.resolve() == i.resolve() for i in inputs):
-            fail(f"{out} is an input file; choose another output name")
+def check_outputs(files: list[Path | None], inputs: list[Path]) -> None:
+    """Before any work: every output file can be written and none is an input (exit 2 otherwise)."""
+    with guarded():
+        for path in files:
+            outputs.check_file(path, inputs)
 
 
 @contextmanager
 def writing(path: Path):
-    """Turn a failed write into one line and exit code 2."""
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        yield
-    except OSError as exc:
-        fail(f"cannot write {path} ({exc.strerror or exc})")
+    """A temporary path for a writer that needs a file name, moved onto `path` when it is complete;
+    a failed write is one line and exit code 2."""
+    with guarded(), outputs.writing_to(path) as temporary:
+        yield temporary
 
 
 def json_safe(value):
@@ -81,13 +81,13 @@ def timing_command(
     from ..render import timing as render
     from ..timing.inspect import inspect_file
 
-    refuse_inputs([json_file, figure], [data])
+    check_outputs([json_file, figure], [data])
     with guarded():
         report = inspect_file(data, person, time, parse_waves(waves))
     _emit(report.to_dict(), json_file, render.timing_view(report))
     if figure is not None:
-        with writing(figure):
-            render.timing_figure(report, figure)
+        with writing(figure) as temporary:
+            render.timing_figure(report, temporary)
 
 
 @app.command("rounding")
@@ -105,12 +105,13 @@ def rounding_command(
     from ..render import timing as render
     from ..timing.experiment import Limits, run_experiment
 
-    refuse_inputs([json_file, figure], [spec])
+    with guarded():
+        check_outputs([json_file, figure], inputs_of(load(spec)))
     json_only = json_file is not None and str(json_file) == "-"
     with guarded():
         experiment = run_experiment(spec, Limits(max_columns, max_patterns, max_levels),
                                     progress=progress(quiet or json_only))
     _emit(experiment.to_dict(), json_file, render.experiment_view(experiment))
     if figure is not None:
-        with writing(figure):
-            render.experiment_figure(experiment, figure)
+        with writing(figure) as temporary:
+            render.experiment_figure(experiment, temporary)

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Iterable
 
 import pandas as pd
 
@@ -10,8 +11,14 @@ from ..errors import DataError
 _READERS = {".csv": ",", ".tsv": "\t", ".txt": "\t"}
 
 
-def read_table(path: Path) -> pd.DataFrame:
-    """Read the file named by the description; every failure becomes a one-line DataError."""
+def read_table(path: Path, text_columns: Iterable[str] = ()) -> pd.DataFrame:
+    """Read the file named by the description; every failure becomes a one-line DataError.
+
+    `text_columns` (person ids, predictor levels: every identifier) are read exactly as written, never
+    converted to numbers: `1.1` and `1.10` stay two different persons. An empty cell is still missing.
+    """
+    if path.is_symlink() and not path.exists():
+        raise DataError(f"{path.name}: is a symbolic link to nothing, or a loop of links ({path})")
     if not path.exists():
         raise DataError(f"{path.name}: data file not found at {path}")
     if not path.is_file():
@@ -21,7 +28,7 @@ def read_table(path: Path) -> pd.DataFrame:
         if suffix == ".parquet":
             frame = pd.read_parquet(path)
         elif suffix in _READERS:
-            frame = pd.read_csv(path, sep=_READERS[suffix])
+            frame = pd.read_csv(path, sep=_READERS[suffix], dtype={str(c): str for c in text_columns})
         else:
             raise DataError(f"{path.name}: unsupported file type '{suffix}' (expected .csv, .tsv or .parquet)")
     except DataError:

@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import time
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -10,6 +9,7 @@ import pandas as pd
 import semopy
 from threadpoolctl import threadpool_limits
 
+from ..capture import library_messages
 from ..compile import CompiledGrowth, GrowthParameters
 from ..errors import FitError
 from ..referee import LOG_2PI
@@ -65,8 +65,7 @@ def run_semopy(text: str, frame: pd.DataFrame, start: dict[str, float] | None = 
         raise FitError(f"semopy rejected the generated wide-form model ({exc})") from exc
     covariance = start_covariance(frame)
     # one BLAS thread: on a busy machine semopy's many small products slow down 10-25x with more
-    with threadpool_limits(limits=1), warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
+    with threadpool_limits(limits=1), library_messages() as caught:  # semopy logs on the root logger
         if start is not None:
             model.load(frame, cov=covariance)
             model.param_vals = np.array([start[name] for name in _active_names(model)])
@@ -79,7 +78,7 @@ def run_semopy(text: str, frame: pd.DataFrame, start: dict[str, float] | None = 
             last = result.fun
     return SemopyRun(values=dict(zip(_active_names(model), map(float, model.param_vals))),
                      objective=float(result.fun), success=bool(result.success), fits=fits,
-                     messages=tuple(dict.fromkeys(str(w.message).splitlines()[0] for w in caught)))
+                     messages=tuple(caught))
 
 
 def semopy_log_likelihood(run: SemopyRun, n_observed: int) -> float:

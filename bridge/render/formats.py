@@ -27,3 +27,22 @@ def exact(value: float | None) -> str:
     if value is None or not math.isfinite(value):
         return ""
     return repr(float(value))
+
+
+#: A text cell starting with one of these is run as a formula by spreadsheet programs.
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def spreadsheet_text(text: str) -> str:
+    """A CSV text cell that a spreadsheet shows instead of running: a leading `'` before `= + - @`
+    (and tab or carriage return). Numbers are never passed here; they stay as they are."""
+    return "'" + text if text.startswith(FORMULA_STARTS) else text
+
+
+def spreadsheet_safe(frame):
+    """A copy of a pandas frame with every text cell and heading made safe by :func:`spreadsheet_text`."""
+    safe = frame.rename(columns=lambda c: spreadsheet_text(c) if isinstance(c, str) else c)
+    for column in safe.columns:
+        if safe[column].dtype == object or str(safe[column].dtype) in ("string", "str"):
+            safe[column] = safe[column].map(lambda v: spreadsheet_text(v) if isinstance(v, str) else v)
+    return safe

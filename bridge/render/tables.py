@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from typing import Union
 
 from ..reconcile.summary import CorrespondenceLine, MixedModelSummary
-from .formats import exact, number, p_value
+from .formats import exact, number, p_value, spreadsheet_text
 
 Cell = Union[str, int, float, None]
 
@@ -53,7 +53,7 @@ def _csv_cell(value: Cell) -> str:
     if value is None:
         return ""
     if isinstance(value, str):
-        return value
+        return spreadsheet_text(value)
     if isinstance(value, int):
         return str(value)
     return exact(value)
@@ -219,9 +219,12 @@ def latex(grids: tuple[Grid, ...]) -> str:
 # ---------------------------------------------------------------------------- CSV
 
 def csv_text(grid: Grid) -> str:
-    """One table as CSV: the headings, then the cells at full precision (empty when missing)."""
+    """One table as CSV: the headings, then the cells at full precision (empty when missing).
+
+    Text cells a spreadsheet would run as a formula get a leading `'` (`render.formats.spreadsheet_text`).
+    """
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(grid.headings)
+    writer.writerow([spreadsheet_text(h) for h in grid.headings])
     writer.writerows([_csv_cell(v) for v in row] for row in grid.rows)
     return out.getvalue()

@@ -6,14 +6,15 @@ nothing in a description is ever evaluated as code.
 """
 from __future__ import annotations
 
+import difflib
 import math
+import os
 from pathlib import Path
 from typing import Any
 
-import yaml
-
-from ..errors import DescriptionError
+from ..errors import DescriptionError, cut, shown
 from .description import DataSection, Description, EstimationSection, FormSettings, ModelSection
+from .reading import read_yaml
 from .vocabulary import Kind, Layout, Method, Missing, Paths, Residuals, Shape, Term, Variant, terms_of
 
 _KEYS = {
@@ -27,6 +28,16 @@ _KEYS = {
     "forms.mixed": {"missing", "time_origin", "time_scale"},
 }
 _MISSING = object()
+#: At most this many problems are listed (then how many more there are).
+MAX_PROBLEMS = 12
+#: A form's time scale outside this range makes its times underflow or overflow.
+TIME_SCALE_RANGE = (1e-12, 1e12)
+
+
+def _suggestion(word: Any, choices) -> str:
+    """` (did you mean 'x'?)` for the nearest valid word, or nothing."""
+    close = difflib.get_close_matches(str(word), sorted(map(str, choices)), n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
 
 #: Keys that belong to one model kind only: a description of another kind that sets them is refused.
 _KIND_OF_KEY = {
@@ -43,12 +54,15 @@ class _Reader:
     """Walks the parsed YAML, remembering where each key stood."""
 
     def __init__(self, label: str, tree: Any, lines: dict[str, int]):
-        self.label, self.tree, self.lines, self.problems = label, tree, lines, []
+        self.label, self.tree, self.lines, self.problems, self.count = label, tree, lines, [], 0
 
-    def problem(self, key: str, expected: str, found: Any) -> None:
+    def problem(self, key: str, expected: str, found: Any, hint: str = "") -> None:
+        self.count += 1
+        if len(self.problems) >= MAX_PROBLEMS:
+            return
         where = f" (line {self.lines[key]})" if key in self.lines else ""
-        shown = "nothing" if found is _MISSING else repr(found)
-        self.problems.append(f"{key or 'the file'}{where}: expected {expected}, found {shown}")
+        value = "nothing" if found is _MISSING else shown(found)
+        self.problems.append(f"{cut(key, 80) or 'the file'}{where}: expected {expected}, found {value}{hint}")
 
     def get(self, key: str, default: Any = _MISSING) -> Any:
         node: Any = self.tree
@@ -68,7 +82,8 @@ class _Reader:
         for key in node:
             if key not in _KEYS[section]:
                 full = f"{section}.{key}" if section else str(key)
-                self.problem(full, "one of " + ", ".join(sorted(_KEYS[section])), key)
+                hint = _suggestion(key, _KEYS[section]) if len(self.problems) < MAX_PROBLEMS else ""
+                self.problem(full, "one of " + ", ".join(sorted(_KEYS[section])), key, hint)
 
     def text(self, key: str, required: bool = True) -> str | None:
         value = self.get(key)
@@ -86,14 +101,18 @@ class _Reader:
         try:
             return vocabulary(value)
         except ValueError:
-            self.problem(key, "one of " + ", ".join(vocabulary.words()), value)
-            return default
+            self.problem(key, "one of " + ", ".join(vocabulary.words()), value, _suggestion(value, vocabulary.words()))
+            return None if default is None else vocabulary(default)
 
     def number(self, key: str, value: Any) -> float | None:
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        try:
+            number = None if isinstance(value, bool) or not isinstance(value, (int, float)) else float(value)
+        except OverflowError:   # an integer too large for a float
+            number = None
+        if number is None or not math.isfinite(number):
             self.problem(key, "a finite number", value)
             return None
-        return float(value)
+        return number
 
     def text_list(self, key: str) -> list[str]:
         value = self.get(key, [])
@@ -103,36 +122,6 @@ class _Reader:
         if len(set(value)) != len(value):
             self.problem(key, "names without repeats", value)
         return value
-
-
-def _line_map(node: yaml.Node, prefix: str = "", lines: dict[str, int] | None = None) -> dict[str, int]:
-    lines = {} if lines is None else lines
-    if isinstance(node, yaml.MappingNode):
-        for key_node, value_node in node.value:
-            key = f"{prefix}.{key_node.value}" if prefix else str(key_node.value)
-            lines[key] = key_node.start_mark.line + 1
-            _line_map(value_node, key, lines)
-    return lines
-
-
-def _parse(path: Path) -> tuple[Any, dict[str, int]]:
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise DescriptionError(f"{path}: description file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise DescriptionError(f"{path}: cannot read the description ({exc.__class__.__name__})") from exc
-    try:
-        tree = yaml.safe_load(text)
-        root = yaml.compose(text, Loader=yaml.SafeLoader)
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        where = f" at line {mark.line + 1}" if mark else ""
-        problem = getattr(exc, "problem", None) or "malformed YAML"
-        raise DescriptionError(f"{path.name}: not valid YAML{where}: {problem}") from exc
-    if not isinstance(tree, dict):
-        raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found {type(tree).__name__}")
-    return tree, _line_map(root) if root is not None else {}
 
 
 def _check_kind(r: _Reader) -> None:
@@ -173,8 +162,22 @@ def _data_section(r: _Reader, base: Path) -> DataSection | None:
         columns = _wide_columns(r) if layout is Layout.WIDE else ()
     if None in (path, person):
         return None
-    return DataSection(path=(base / path).resolve(), layout=layout, person=person, time=time, outcome=outcome,
+    where = _resolved(base / path)
+    if where is None:
+        r.problem("data.path", "a file name", path)
+        return None
+    return DataSection(path=where, layout=layout, person=person, time=time, outcome=outcome,
                        columns=columns, outcomes=outcomes, panel_columns=panel_columns)
+
+
+def _resolved(path: Path) -> Path | None:
+    """The absolute path without symbolic links (as written when they loop); None for an impossible name."""
+    try:
+        return path.resolve()
+    except (OSError, RuntimeError):
+        return Path(os.path.abspath(path))
+    except ValueError:   # e.g. a NUL character
+        return None
 
 
 def _outcomes(r: _Reader) -> tuple[str, ...]:
@@ -269,18 +272,30 @@ def _form(r: _Reader, name: str) -> FormSettings:
     key = f"forms.{name}"
     missing = r.get(f"{key}.missing", None)
     origin, scale = r.get(f"{key}.time_origin", None), r.get(f"{key}.time_scale", None)
-    if scale is not None and r.number(f"{key}.time_scale", scale) is not None and scale <= 0:
-        r.problem(f"{key}.time_scale", "a positive number", scale)
+    low, high = TIME_SCALE_RANGE
+    if scale is not None:
+        scale = r.number(f"{key}.time_scale", scale)
+        if scale is not None and not low <= scale <= high:
+            r.problem(f"{key}.time_scale", f"a positive number from {low:g} to {high:g}", scale,
+                      " (a smaller or larger scale makes the times underflow or overflow)")
+            scale = None
     return FormSettings(missing=None if missing is None else r.word(f"{key}.missing", Missing, None),
                         time_origin=None if origin is None else r.number(f"{key}.time_origin", origin),
-                        time_scale=None if scale is None else r.number(f"{key}.time_scale", scale))
+                        time_scale=scale)
 
 
 def load(path: str | Path) -> Description:
     """Read and validate a YAML model description; raise one DescriptionError listing every problem."""
     path = Path(path)
-    tree, lines = _parse(path)
+    tree, lines, duplicates = read_yaml(path)
+    if not isinstance(tree, dict):
+        found = "an empty file" if tree is None else type(tree).__name__
+        raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found {found}")
     reader = _Reader(path.name, tree, lines)
+    for duplicate in duplicates:
+        reader.count += 1
+        if len(reader.problems) < MAX_PROBLEMS:
+            reader.problems.append(duplicate)
     for section in _KEYS:
         reader.check_keys(section)
     _check_kind(reader)
@@ -289,6 +304,7 @@ def load(path: str | Path) -> Description:
     estimation = _estimation_section(reader)
     sem_form, mixed_form = _form(reader, "sem"), _form(reader, "mixed")
     if reader.problems or data is None:  # every path that leaves data unset has recorded a problem
-        raise DescriptionError(f"{path.name}: " + "; ".join(reader.problems))
+        more = reader.count - len(reader.problems)
+        raise DescriptionError(f"{path.name}: " + "; ".join(reader.problems) + (f"; and {more} more" if more else ""))
     return Description(data=data, model=model, estimation=estimation, sem_form=sem_form, mixed_form=mixed_form,
-                       source=path.resolve())
+                       source=_resolved(path) or path)

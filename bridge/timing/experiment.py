@@ -211,7 +211,8 @@ def run_experiment(description: Description | str, limits: Limits = Limits(), fr
                                f"model.kind is {description.model.kind.value}")
     if description.model.residuals is not Residuals.EQUAL:  # one variance per column cannot follow the grid
         description = replace(description, model=replace(description.model, residuals=Residuals.EQUAL))
-    frame = read_table(description.data.path) if frame is None else frame
+    frame = read_table(description.data.path, text_columns=(description.data.person, *description.model.predictors)) \
+        if frame is None else frame
     base = shape_frame(description, frame)
     design = base.timing.waves
     grid = grid_at(0, design, base.person_index, base.times)

@@ -177,4 +177,4 @@ def inspect_file(path: str | Path, person: str, time: str, waves: tuple[float, .
     """The timing report of a long-layout data file (.csv, .tsv, .parquet); the file is only read."""
     path = Path(path)
     waves = check_waves(waves)
-    return inspect_frame(read_table(path), person, time, waves, source=path.name)
+    return inspect_frame(read_table(path, text_columns=[person]), person, time, waves, source=path.name)

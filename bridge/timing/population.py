@@ -24,11 +24,10 @@ import math
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-import yaml
-
 from ..errors import DescriptionError
 from ..simulate.growth import GrowthTruth
 from ..spec import Description, Layout
+from ..spec.reading import read_yaml
 from ..spec.vocabulary import Kind
 
 _DESIGN = {"persons", "waves", "missing_rate", "jitter", "predictors"}
@@ -72,10 +71,9 @@ class _Problems:
 def _read(path: Path) -> dict:
     if not path.is_file():
         raise DescriptionError(f"{path.name}: population file not found at {path}")
-    try:
-        tree = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except (yaml.YAMLError, UnicodeDecodeError) as exc:
-        raise DescriptionError(f"{path.name}: not valid YAML ({str(exc).splitlines()[0]})") from None
+    tree, _, duplicates = read_yaml(path, "population")   # bounded, like a description
+    if duplicates:
+        raise DescriptionError(f"{path.name}: " + "; ".join(duplicates))
     if not isinstance(tree, dict) or set(tree) != {"design", "truth"} or not all(
             isinstance(tree[k], dict) for k in tree):
         raise DescriptionError(f"{path.name}: expected two mappings, 'design' and 'truth'")

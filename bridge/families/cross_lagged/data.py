@@ -60,32 +60,29 @@ class PanelData:
 
 
 def _long(desc: Description, frame: pd.DataFrame, label: str) -> pd.DataFrame:
+    """One row per person, wave and outcome, in internal columns only (_person, _time, _var, _y)."""
     d = desc.data
     if d.layout is Layout.WIDE:
         wanted = [("data.person", d.person)] + [(f"data.columns.{v}", c) for v, cols in d.panel_columns
                                                  for c, _ in cols]
         need_columns(frame, wanted, label)
-        parts = []
-        for name, columns in d.panel_columns:
-            block = frame[[d.person, *(c for c, _ in columns)]].melt(id_vars=d.person, var_name="_col",
-                                                                      value_name="_y")
-            block["_time"] = block.pop("_col").map(dict(columns)).astype(float)
-            parts.append(block.assign(_var=name, _y=numeric_column(block, "_y", f"outcome {name!r}", label, True)))
-        return pd.concat(parts).rename(columns={d.person: "_person"})
+        person = frame[d.person].to_numpy()
+        return pd.concat([pd.DataFrame({"_person": person, "_time": float(time), "_var": name,
+                                        "_y": numeric_column(frame, column, f"outcome {name!r}", label, True)})
+                          for name, columns in d.panel_columns for column, time in columns], ignore_index=True)
     need_columns(frame, [("data.person", d.person), ("data.time", d.time),
                           *(("data.outcomes", o) for o in d.outcomes)], label)
-    long = frame.assign(_time=numeric_column(frame, d.time, "time", label, allow_nan=False))
-    for name in d.outcomes:
-        long[name] = numeric_column(frame, name, "outcome", label, allow_nan=True)
-    return long.melt(id_vars=[d.person, "_time"], value_vars=list(d.outcomes), var_name="_var",
-                     value_name="_y").rename(columns={d.person: "_person"})
+    person, time = frame[d.person].to_numpy(), numeric_column(frame, d.time, "time", label, allow_nan=False)
+    return pd.concat([pd.DataFrame({"_person": person, "_time": time, "_var": name,
+                                    "_y": numeric_column(frame, name, "outcome", label, allow_nan=True)})
+                      for name in d.outcomes], ignore_index=True)
 
 
 def shape_panel(desc: Description, frame: pd.DataFrame | None = None) -> PanelData:
     """Read (unless given a frame), check and shape cross-lagged data; DataError on the first problem."""
     label = desc.data.path.name
-    frame = read_table(desc.data.path) if frame is None else frame
-    long = _long(desc, frame.copy(), label)
+    frame = read_table(desc.data.path, text_columns=[desc.data.person]) if frame is None else frame
+    long = _long(desc, frame, label)
     if long["_person"].isna().any():
         raise DataError(f"{label}: person column '{desc.data.person}' has missing values")
     long["_person"] = long["_person"].astype(str)
