@@ -9,6 +9,7 @@ from rich.table import Table
 from rich.text import Text
 
 from ..timing.experiment import RoundingExperiment
+from .fitting import Fitting, key_column, number_columns
 from ..timing.inspect import TimingReport
 
 SHOWN_WAVES = 12   # a longer spread table shows its first and last rows only (all are in the JSON)
@@ -21,19 +22,19 @@ def _fmt(value: float, digits: int = 4) -> str:
 
 
 def _spread_table(report: TimingReport) -> Table:
-    table = Table(title="Times assigned to each wave", title_justify="left", header_style="bold")
-    for heading in ("wave", "n", "min", "25%", "median", "75%", "max", "SD", "mean move", "max move"):
-        table.add_column(heading, justify="right", no_wrap=True)
-    rows = list(report.spread)
-    hidden = len(rows) - SHOWN_WAVES
+    table = Table(title=f"Times assigned to each wave (time in '{report.time}' units)", title_justify="left",
+                  header_style="bold", show_edge=False)
+    spread = list(report.spread)
+    hidden = len(spread) - SHOWN_WAVES
     if hidden > 0:
-        rows = rows[:SHOWN_WAVES // 2] + [None] + rows[-SHOWN_WAVES // 2:]
-    for s in rows:
-        if s is None:
-            table.add_row(Text(f"... {hidden} more", style="dim"), *[""] * 9)
-            continue
-        table.add_row(_fmt(s.wave), str(s.n), *(_fmt(v) for v in (s.minimum, s.q1, s.median, s.q3, s.maximum, s.sd,
-                                                                   s.displacement_mean, s.displacement_max)))
+        spread = spread[:SHOWN_WAVES // 2] + [None] + spread[-SHOWN_WAVES // 2:]
+    rows = [[f"... {hidden} more"] + [""] * 9 if s is None else
+            [_fmt(s.wave), str(s.n), *(_fmt(v) for v in (s.minimum, s.q1, s.median, s.q3, s.maximum, s.sd,
+                                                          s.displacement_mean, s.displacement_max))]
+            for s in spread]
+    number_columns(table, ("wave", "n", "min", "25%", "median", "75%", "max", "SD", "mean\nmove", "max\nmove"), rows)
+    for row in rows:
+        table.add_row(*row)
     return table
 
 
@@ -49,18 +50,69 @@ def timing_lines(report: TimingReport) -> list[str]:
             f"Wave grid ({t.grid_source.value}): {waves}",
             f"Rounding onto the grid moves a time by {t.displacement_mean:.3g} on average (median {median:.3g}, "
             f"90% within {p90:.3g}, at most {top:.3g}); median gap between waves {report.median_gap:g}",
+            _split_line(t),
             f"Wide form on this grid: {len(t.waves)} columns, {report.grid_patterns} missing-data patterns, "
             f"{report.complete_persons} persons seen at every wave",
             f"Wide form on the exact times: {report.exact_columns} columns, {report.exact_patterns} missing-data "
             "patterns"]
 
 
+def _split_line(t) -> str:
+    s = t.split
+    if s is None or s.variance <= 0:
+        return "Signed displacement (time minus its wave): none"
+    return (f"Signed displacement (time minus its wave): mean {s.mean:.3g}, variance {s.variance:.3g} = "
+            f"person offsets {s.between:.3g} ({s.between_share:.0%}) + occasion jitter {s.within:.3g} "
+            f"({s.within_share:.0%})")
+
+
+def _check_table(report: TimingReport, full: bool) -> Table:
+    """Exact-time value, predicted and measured change of each quantity, in standard errors."""
+    check = report.check
+    p = check.prediction
+    title = ("Rounding onto the grid: wide form minus exact-time mixed model" +
+             (f" (with {check.offset_predictor} as a predictor)" if check.offset_predictor else ""))
+    caption = ("Sorted by the measured gap in standard errors (SE of the exact-time mixed model)."
+               + ("" if full else " Exact values and SEs: --json."))
+    table = Table(title=title, title_justify="left", header_style="bold", caption=caption, caption_justify="left",
+                  show_edge=full)
+    keys = [k for k, _ in check.ranked()]
+    key_column(table, "quantity", keys)
+    headings = ("exact", "SE", "predicted", "pred.\nin SE", "measured", "meas.\nin SE")
+    rows = []
+    for key, in_se in check.ranked():
+        change = p.change.get(key) if p else None
+        rows.append([_fmt(check.exact[key]), _fmt(check.exact_se[key]),
+                     _fmt(change) if change is not None else "-",
+                     f"{p.in_se[key]:+.2f}" if p and key in p.in_se else "-",
+                     _fmt(check.observed[key]), f"{in_se:+.2f}"])
+    if not full:
+        headings, rows = headings[2:], [row[2:] for row in rows]
+    number_columns(table, headings, rows)
+    for key, row in zip(keys, rows):
+        table.add_row(Text(key), *row)
+    return table
+
+
+def _exact_wide_line(report: TimingReport) -> str:
+    e = report.check.exact_wide
+    return (f"Exact wide form (person-specific loadings at the exact times), maximised by the referee: "
+            f"log-likelihood {e.log_likelihood:.6f}; mixed model {e.mixed_log_likelihood:.6f} (difference "
+            f"{e.difference:.2g}). Unbalanced timing is a limit of the software that fits the wide layout, "
+            "not of the framework.")
+
+
 def timing_view(report: TimingReport) -> Group:
     """Everything `sembridge timing` prints."""
     r = report.recommendation
     advice = Text.assemble(("Recommendation: ", "bold"), (r.framework, "bold green"), f"\n{r.reason}\n",
-                           ("Cost: ", "bold"), r.cost)
-    return Group(*(Text(line) for line in timing_lines(report)), Text(""), _spread_table(report), advice)
+                           ("Trade-offs: ", "bold"), r.cost)
+    parts = [*(Text(line) for line in timing_lines(report)), Text(""), _spread_table(report)]
+    if report.check is not None:
+        parts.append(Fitting(_check_table(report, True), _check_table(report, False)))
+        if report.check.exact_wide is not None:
+            parts.append(Text(_exact_wide_line(report)))
+    return Group(*parts, advice)
 
 
 def timing_figure(report: TimingReport, path: Path) -> None:

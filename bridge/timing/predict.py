@@ -103,7 +103,7 @@ def predict(shaped: ShapedData, exact: dict[str, float], exact_se: dict[str, flo
         return None
     split = shaped.timing.split or DisplacementSplit(0.0, 0.0, 0.0)
     change, square = predicted_change(split, exact, person_slopes(shaped, exact), time_scale)
-    change = {k: float(v) for k, v in change.items() if k in exact}
+    change = {k: float(change.get(k, 0.0)) for k in exact if not k.startswith("var.residual.")}
     in_se = {k: v / exact_se[k] if exact_se.get(k) and np.isfinite(exact_se[k]) else float("nan")
              for k, v in change.items()}
     return Prediction(change=change, in_se=in_se, slope_square=square,
