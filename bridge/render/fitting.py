@@ -4,8 +4,10 @@ Wide tables offer a stacked or shorter layout for narrow terminals, so no number
 """
 from __future__ import annotations
 
-from rich.console import Console, ConsoleOptions, RenderResult
+from rich import box
+from rich.console import Console, ConsoleOptions, Group, RenderResult
 from rich.table import Table
+from rich.text import Text
 
 
 class Fitting:
@@ -40,3 +42,24 @@ def number_columns(table: Table, headings: tuple[str, ...], rows: list[list[str]
 def key_column(table: Table, heading: str, keys) -> None:
     """A left-aligned column of quantity keys, as wide as the longest key."""
     table.add_column(heading, min_width=max((len(k) for k in keys), default=len(heading)), no_wrap=True)
+
+
+def stacked(title: str, caption: str, headings: tuple[str, ...],
+            blocks: list[tuple[str, list[list[str]]]]) -> Group:
+    """A narrow layout: each quantity's key on its own line, its rows below in columns of one fixed width.
+
+    Every cell keeps its full text; only the header of the first block is shown.
+    """
+    widths = [max([len(part) for part in h.split("\n")] + [len(row[k]) for _, rows in blocks for row in rows])
+              for k, h in enumerate(headings)]
+    parts: list = [Text(title, style="italic")]
+    for i, (key, rows) in enumerate(blocks):
+        table = Table(box=box.SIMPLE_HEAD, show_header=i == 0, show_edge=False, pad_edge=False,
+                      header_style="bold", padding=(0, 1))
+        for k, (heading, width) in enumerate(zip(headings, widths)):
+            table.add_column(heading, justify="left" if k == 0 else "right", width=width, no_wrap=True)
+        for row in rows:
+            table.add_row(*row)
+        parts += [Text(key, style="bold"), table]
+    parts.append(Text(caption))
+    return Group(*parts)
