@@ -80,12 +80,16 @@ def missing_data(ctx: Context) -> tuple[str, dict]:
 
 
 def time_binning(ctx: Context) -> tuple[str, dict]:
+    from ..timing.predict import binning_prediction
+
     timing = ctx.base.pair.mixed.shaped.timing
+    predicted, details = binning_prediction(ctx.base.pair.mixed.shaped, ctx.base.rows, ctx.base.plan.mixed.scale)
     text = (f"Times vary by person: the wide form moved each occasion to its nearest wave, by up to "
             f"{timing.displacement_max:.3g} ({timing.displacement_mean:.3g} on average). Refitting the mixed "
             f"model on the same rounded times closes the gaps, so rounding is the whole difference. Trust the "
-            f"exact-time mixed model. {_gap_sentence(ctx)}")
-    return text, {"displacement_max": timing.displacement_max, "displacement_mean": timing.displacement_mean}
+            f"exact-time mixed model. {_gap_sentence(ctx)} {predicted}".rstrip())
+    return text, {"displacement_max": timing.displacement_max, "displacement_mean": timing.displacement_mean,
+                  **details}
 
 
 def time_coding(ctx: Context) -> tuple[str, dict]:

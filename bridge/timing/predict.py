@@ -110,3 +110,23 @@ def predict(shaped: ShapedData, exact: dict[str, float], exact_se: dict[str, flo
                       offset_variance=split.between * time_scale ** 2,
                       jitter_variance=split.within * time_scale ** 2, offset_mean=split.mean * time_scale,
                       observed=dict(observed or {}))
+
+
+def binning_prediction(shaped: ShapedData, rows, time_scale: float = 1.0) -> tuple[str, dict]:
+    """A sentence and details for the `time-binning` explanation: the predicted change beside the observed gap.
+
+    `rows` are the reconciliation's quantity rows (wide and long estimates, long-form SEs).
+    """
+    exact = {r.key: float(r.mixed.estimate) for r in rows}
+    exact_se = {r.key: float(r.mixed.se) for r in rows}
+    observed = {r.key: float(r.sem.estimate - r.mixed.estimate) for r in rows}
+    p = predict(shaped, exact, exact_se, observed, time_scale)
+    if p is None:
+        return "", {}
+    key = max(p.change, key=lambda k: abs(p.in_se.get(k, 0.0)) if np.isfinite(p.in_se.get(k, np.nan)) else 0.0)
+    text = (f"Predicted from the exact-time fit (person offsets to the intercept variance, occasion jitter to the "
+            f"residual variance): {key} {p.change[key]:+.4g} ({p.in_se[key]:+.2f} SE); observed "
+            f"{observed.get(key, float('nan')):+.4g}.")
+    return text, {"predicted_change": p.change, "predicted_change_se": p.in_se,
+                  "displacement_split": {"mean": p.offset_mean, "person_offset_variance": p.offset_variance,
+                                         "occasion_jitter_variance": p.jitter_variance}}
