@@ -105,8 +105,14 @@ def time_coding(ctx: Context) -> tuple[str, dict]:
         details["implied_origin_shift"] = (b0s - b0m) / b1m
         implied = (f" From the estimates: one SEM time unit is {b1s / b1m:.4g} mixed-model units and the SEM's "
                    f"zero lies {(b0s - b0m) / b1m:.4g} mixed-model units from the mixed model's.")
+    ll = ctx.alone.adjudication.log_likelihood
+    same = abs(ll["sem"] - ll["mixed"]) <= 1e-6 * max(1.0, abs(ll["mixed"]))
+    details["log_likelihood"] = {"sem": ll["sem"], "mixed": ll["mixed"], "same": bool(same)}
+    fit = ("Their log-likelihoods are equal, so the recoding only reparameterises the model." if same else
+           f"Their log-likelihoods differ ({ll['sem']:.4f} against {ll['mixed']:.4f}), so with this random part "
+           "the recoding changes the model, not only its parameters.")
     text = (f"The SEM codes time as (time - {sem.origin:g}) x {sem.scale:g}, the mixed model as (time - "
-            f"{mixed.origin:g}) x {mixed.scale:g}.{implied} Recoded to one time coding, the gaps close. "
+            f"{mixed.origin:g}) x {mixed.scale:g}.{implied} {fit} Recoded to one time coding, the gaps close. "
             f"{_gap_sentence(ctx)}")
     return text, details
 
