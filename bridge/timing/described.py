@@ -141,7 +141,7 @@ def check_description(description: Description | str, frame=None, with_offset: b
     exact_se = {r.key: float(r.mixed.se) for r in evaluation.rows}
     observed = {r.key: float(r.sem.estimate - r.mixed.estimate) for r in evaluation.rows}
     scale = evaluation.plan.mixed.scale
-    prediction = None if offset else predict(shaped, exact, exact_se, observed, time_scale=scale)
+    prediction = predict(shaped, exact, exact_se, observed, time_scale=scale, offset_key=offset)
     check = RoundingCheck(description=description.label, exact=exact, exact_se=exact_se, observed=observed,
                           prediction=prediction, exact_wide=exact_wide_form(evaluation) if exact_wide else None,
                           per_wave_residuals=description.model.residuals is Residuals.PER_WAVE,

@@ -73,12 +73,23 @@ def person_slopes(shaped: ShapedData, estimates: dict[str, float]) -> np.ndarray
 
 
 def predicted_change(split: DisplacementSplit, estimates: dict[str, float], slopes: np.ndarray,
-                     time_scale: float = 1.0) -> tuple[dict[str, float], float]:
+                     time_scale: float = 1.0, offset_key: str | None = None) -> tuple[dict[str, float], float]:
     """The change of each affected quantity (and E[b^2]) from exact-time estimates of a linear growth model.
 
     `slopes` are the persons' fixed slopes; displacements are in the data's time units and `time_scale`
-    turns them into the model's (form time = (time - origin) x time_scale).
+    turns them into the model's (form time = (time - origin) x time_scale). With the person offset c_i
+    itself a predictor (`offset_key`, its quantity key), E[a + b c | c] = E[a] + E[b] c is taken up by the
+    offset's intercept effect (which gains the mean slope), and only Var(b) Var(c) of the intercept
+    variance's gain is left (the part of b_i c_i a predictor of the mean cannot absorb).
     """
+    if offset_key is not None:
+        var_b = estimates.get("var.slope", 0.0)
+        square = float(np.mean(np.asarray(slopes) ** 2)) + var_b
+        change = {"var.residual": square * split.within * time_scale ** 2,
+                  f"effect.{offset_key}.intercept": float(np.mean(slopes)) * time_scale}
+        if "var.intercept" in estimates:
+            change["var.intercept"] = var_b * split.between * time_scale ** 2
+        return change, square
     var_b = estimates.get("var.slope", 0.0)
     cov_ab = estimates.get("cov.intercept.slope", 0.0)
     square = float(np.mean(np.asarray(slopes) ** 2)) + var_b
@@ -96,13 +107,16 @@ def predicted_change(split: DisplacementSplit, estimates: dict[str, float], slop
 
 
 def predict(shaped: ShapedData, exact: dict[str, float], exact_se: dict[str, float],
-            observed: dict[str, float] | None = None, time_scale: float = 1.0) -> Prediction | None:
+            observed: dict[str, float] | None = None, time_scale: float = 1.0,
+            offset_key: str | None = None) -> Prediction | None:
     """The prediction for a shaped data set from its exact-time estimates; None unless linear growth."""
     if "mean.slope" not in exact or any(k.startswith("mean.") and k not in ("mean.intercept", "mean.slope")
                                         for k in exact):
         return None
     split = shaped.timing.split or DisplacementSplit(0.0, 0.0, 0.0)
-    change, square = predicted_change(split, exact, person_slopes(shaped, exact), time_scale)
+    slopes = person_slopes(shaped, {k: v for k, v in exact.items() if offset_key is None
+                                    or not k.startswith(f"effect.{offset_key}.")})
+    change, square = predicted_change(split, exact, slopes, time_scale, offset_key)
     change = {k: float(change.get(k, 0.0)) for k in exact if not k.startswith("var.residual.")}
     in_se = {k: v / exact_se[k] if exact_se.get(k) and np.isfinite(exact_se[k]) else float("nan")
              for k, v in change.items()}
