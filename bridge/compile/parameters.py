@@ -62,3 +62,22 @@ class Scaling:
     def log_jacobian(self, n_observations: int) -> float:
         """Add to an internal-scale log-likelihood to get the user's-scale one."""
         return -n_observations * float(np.log(self.y_scale))
+
+
+def psd_factor(cov: np.ndarray) -> np.ndarray:
+    """A lower-triangular L with L L' = cov for a positive semidefinite (possibly singular) matrix."""
+    w, V = np.linalg.eigh((cov + cov.T) / 2)
+    root = V * np.sqrt(np.clip(w, 0.0, None))
+    R = np.linalg.qr(root.T, mode="r")      # root root' = R'R
+    L = R.T
+    return L * np.where(np.diag(L) < 0, -1.0, 1.0)[None, :]
+
+
+def nearest_psd(cov: np.ndarray) -> np.ndarray:
+    w, V = np.linalg.eigh((cov + cov.T) / 2)
+    return (V * np.clip(w, 0.0, None)) @ V.T
+
+
+def is_psd(cov: np.ndarray) -> bool:
+    w = np.linalg.eigvalsh(cov)
+    return bool(w.min() >= -1e-10 * max(float(np.abs(w).max()), 1e-12))

@@ -9,7 +9,7 @@ import numpy as np
 from ..compile import Plan, TimeSource
 from ..data import Design
 from ..spec import Method, Missing, Residuals, Term
-from ..referee.spaces import is_psd
+from ..compile.parameters import is_psd
 from .evaluation import Evaluation
 
 BOUNDARY_RELATIVE = 1e-3  # a variance below this share of the largest one (internal scale) is at its boundary

@@ -12,7 +12,8 @@ from dataclasses import replace
 
 from ..fit import FitOutcome
 from ..referee.likelihood import Referee
-from ..referee.spaces import certify_growth, is_psd, space_of
+from ..compile.parameters import is_psd
+from ..referee.spaces import certify_growth, space_of
 from .compare import compare
 from .evaluation import Evaluation
 

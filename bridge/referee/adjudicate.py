@@ -7,10 +7,12 @@ import numpy as np
 
 from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key, LongDesign, cov_key, var_key
 from ..fit import FitOutcome, fit_mixed, fit_sem
+from ..fit.mixed import boundary_face
 from .certificate import Certificate
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
-from .spaces import certify_growth, is_psd, space_of
+from ..compile.parameters import is_psd
+from .spaces import certify_growth, space_of
 
 NEAR_SINGULAR = 1e-4  # smallest/largest eigenvalue of the person-effect covariance
 
@@ -157,7 +159,7 @@ def _boundary_candidate(compiled: CompiledGrowth, mixed: FitOutcome, reml: bool)
     low = [i for i, d in enumerate(diag) if d <= NEAR_SINGULAR * max(float(diag.max()), 1e-12)]
     if not low or len(low) == len(diag):
         return None
-    return fit_mixed(compiled, reml, keep=tuple(i for i in range(len(diag)) if i not in low))
+    return fit_mixed(compiled, reml, face=np.eye(len(diag))[:, [i for i in range(len(diag)) if i not in low]])
 
 
 def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudication:
@@ -183,8 +185,8 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
                              "the semopy solution scores {gap:.4g} higher under the long-form criterion",
                              lambda p: fit_mixed(pair.mixed, reml, start=p))
     sem, sem_certificate = judge.certified("semopy", pair.sem, sem, lambda p: fit_sem(pair.sem, start=p))
-    mixed, mixed_certificate = judge.certified("statsmodels", pair.mixed, mixed,
-                                               lambda p: fit_mixed(pair.mixed, reml, start=p))
+    mixed, mixed_certificate = judge.certified(
+        "statsmodels", pair.mixed, mixed, lambda p: fit_mixed(pair.mixed, reml, start=p, face=boundary_face(p.cov)))
     checks = (LikelihoodCheck("semopy", "ml", sem.own_log_likelihood, judge.sem_score(sem.params)),
               LikelihoodCheck("statsmodels", "reml" if reml else "ml", mixed.own_log_likelihood,
                               judge.mixed_score(mixed.params)))

@@ -212,8 +212,15 @@ def curvature(maximum: LocalMaximum) -> tuple[str, int]:
 
 
 def moves(solution: np.ndarray, maximum: np.ndarray, se: np.ndarray) -> np.ndarray:
-    """Each quantity's distance to the referee's maximum in units of its allowed move (<= 1 passes)."""
-    allowed = np.maximum(MOVE_RELATIVE * np.abs(maximum), np.where(np.isfinite(se), MOVE_SE * se, 0.0))
+    """Each quantity's distance to the referee's maximum in units of its allowed move (<= 1 passes).
+
+    Allowed: MOVE_RELATIVE of the value; for a value near zero (within one standard error of it)
+    MOVE_SE of its standard error instead, when that is larger.
+    """
+    finite = np.isfinite(se)
+    near_zero = finite & (np.abs(maximum) < np.where(finite, se, 0.0))
+    by_se = np.where(near_zero, MOVE_SE * np.where(finite, se, 0.0), 0.0)
+    allowed = np.maximum(MOVE_RELATIVE * np.abs(maximum), by_se)
     allowed = np.maximum(allowed, 1e-12 * max(1.0, float(np.abs(maximum).max()) if len(maximum) else 1.0))
     return np.abs(solution - maximum) / allowed
 
@@ -260,14 +267,17 @@ def certify(criterion: Criterion, x: np.ndarray, names: tuple[str, ...], reporte
             form: str, criterion_name: str = "ml", lower: np.ndarray | None = None,
             upper: np.ndarray | None = None, shift: float = 0.0, starts: int = 1,
             quantities: Callable[[np.ndarray], np.ndarray] | None = None,
-            at_solution: float | None = None) -> tuple[Certificate, LocalMaximum | None]:
+            at_solution: float | None = None,
+            singular: Callable[[np.ndarray], bool] | None = None) -> tuple[Certificate, LocalMaximum | None]:
     """Certify a library's solution `x` of `criterion` (the referee's log-likelihood of the library's model).
 
     `shift` turns the criterion's value into the user's scale of `reported`; `quantities` maps a
     parameter vector to the numbers the tool reports (identity by default), on which moves are measured;
     `names` label the coordinates (for the boundary list). When the criterion profiles some parameters
     out, `at_solution` is the referee's value (criterion's scale) at the library's full solution: it is
-    what the library's own value must reproduce, and the gain is measured from it.
+    what the library's own value must reproduce, and the gain is measured from it. `singular` says
+    whether a point lies on a boundary that is not a bound of the coordinates (a singular covariance).
+    On any boundary standard errors are not ordinary, so every move is held to MOVE_RELATIVE alone.
     """
     f = _safe(criterion)
     x = np.asarray(x, float)
@@ -281,10 +291,11 @@ def certify(criterion: Criterion, x: np.ndarray, names: tuple[str, ...], reporte
     decrement = maximum.start_decrement
     gain = max(0.0, maximum.value - at_solution)
     measure = quantities or (lambda v: v)
-    se = _quantity_se(measure, maximum)
+    shape, flat = curvature(maximum)
+    edge = bool(maximum.active.any()) or flat > 0 or (singular is not None and singular(maximum.point))
+    se = np.full(len(np.asarray(measure(x))), np.nan) if edge else _quantity_se(measure, maximum)
     move = moves(np.asarray(measure(x), float), np.asarray(measure(maximum.point), float), se)
     largest = float(move.max()) if len(move) else 0.0
-    shape, _ = curvature(maximum)
     boundary = tuple(n for n, a in zip(names, maximum.active) if a)
     passed, reason = verdict_of(reported, referee, gain, largest)
     return Certificate(library, form, criterion_name, float(reported), float(referee), float(gain), float(decrement),

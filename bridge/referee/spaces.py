@@ -17,27 +17,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..compile import CompiledGrowth, GrowthParameters
+from ..compile.parameters import is_psd, nearest_psd, psd_factor
 from .certificate import MOVE_RELATIVE, MOVE_SE, Certificate, certify, maximise_locally
 from .likelihood import Referee
 
-
-def psd_factor(cov: np.ndarray) -> np.ndarray:
-    """A lower-triangular L with L L' = cov for a positive semidefinite (possibly singular) matrix."""
-    w, V = np.linalg.eigh((cov + cov.T) / 2)
-    root = V * np.sqrt(np.clip(w, 0.0, None))
-    R = np.linalg.qr(root.T, mode="r")      # root root' = R'R
-    L = R.T
-    return L * np.where(np.diag(L) < 0, -1.0, 1.0)[None, :]
-
-
-def nearest_psd(cov: np.ndarray) -> np.ndarray:
-    w, V = np.linalg.eigh((cov + cov.T) / 2)
-    return (V * np.clip(w, 0.0, None)) @ V.T
-
-
-def is_psd(cov: np.ndarray) -> bool:
-    w = np.linalg.eigvalsh(cov)
-    return bool(w.min() >= -1e-10 * max(float(np.abs(w).max()), 1e-12))
+SINGULAR = 1e-8   # smallest/largest eigenvalue of the person-effect covariance at which it counts as singular
 
 
 @dataclass(frozen=True)
@@ -86,6 +70,13 @@ class GrowthSpace:
         """The criterion at a full solution (fixed effects as given under ML)."""
         return self.referee.criterion(params, self.reml)
 
+    def singular(self, vector: np.ndarray) -> bool:
+        """Whether the person-effect covariance at a point is singular (on the edge of the PSD cone)."""
+        if not self.psd:
+            return False
+        w = np.linalg.eigvalsh(self.template.with_variances(self.natural(vector), self.equal_residuals).cov)
+        return bool(w.min() <= SINGULAR * max(float(w.max()), 1e-300))
+
     def lower(self) -> np.ndarray:
         rows, cols = np.tril_indices(self._q)
         n_res = 1 if self.equal_residuals else len(self.template.residual)
@@ -122,7 +113,7 @@ def certify_growth(space: GrowthSpace, compiled: CompiledGrowth, params: GrowthP
     certificate, found = certify(
         space.criterion, space.vector(params), space.names(), reported, library=library, form=form,
         criterion_name="reml" if space.reml else "ml", lower=space.lower(), shift=space.shift,
-        quantities=space.natural, at_solution=space.full(params))
+        quantities=space.natural, at_solution=space.full(params), singular=space.singular)
     if found is None:
         return certificate, None
     best = space.params(found.point)
@@ -144,6 +135,7 @@ def _fixed_move(space: GrowthSpace, compiled: CompiledGrowth, params: GrowthPara
     here, there = compiled.to_quantities(params), compiled.to_quantities(best)
     worst = 0.0
     for key, s in zip(keys, se):
-        allowed = max(MOVE_RELATIVE * abs(there[key]), MOVE_SE * s * factors[key], 1e-12)
+        near_zero = abs(there[key]) < s * factors[key]
+        allowed = max(MOVE_RELATIVE * abs(there[key]), MOVE_SE * s * factors[key] if near_zero else 0.0, 1e-12)
         worst = max(worst, abs(here[key] - there[key]) / allowed)
     return worst
