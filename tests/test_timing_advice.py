@@ -159,3 +159,31 @@ def test_timing_spec_bad_input_is_one_line(tmp_path, args, message):
     assert result.exit_code == 2
     assert re.search(re.escape(message), result.output)
     assert "Traceback" not in result.output
+
+
+def test_rounding_and_simulate_fit_80_columns(tmp_path):
+    # Simulated (seed 9, 60 persons, jitter 0.2 around waves 0..4); two replications of a 40-person study.
+    truth = GrowthTruth(n_persons=60, waves=(0, 1, 2, 3, 4), mean={"intercept": 20.0, "slope": 5.0},
+                        random_cov=((9.0, 0.5), (0.5, 4.0)), residual=1.0, jitter=0.2)
+    simulate_growth(truth, 9).to_csv(tmp_path / "r.csv", index=False)
+    spec = description(tmp_path, "r.csv", waves=(0, 1, 2, 3, 4))
+    env = {"COLUMNS": str(WIDTH)}
+    rounding = runner.invoke(app, ["rounding", str(spec), "--max-levels", "1", "--quiet"], env=env)
+    assert rounding.exit_code == 0, rounding.output
+    assert_fits(rounding.output)
+    assert "in SE" in rounding.output and "var.residual" in rounding.output
+    population = tmp_path / "population.yaml"
+    population.write_text(yaml.safe_dump({
+        "design": {"persons": 40, "waves": [0, 1, 2, 3, 4], "jitter": 0.2},
+        "truth": {"mean.intercept": 20, "mean.slope": 5, "var.intercept": 9, "var.slope": 4,
+                  "cov.intercept.slope": 0.5, "var.residual": 1}}))
+    study = runner.invoke(app, ["simulate", str(spec), "--population", str(population), "--replications", "2",
+                                "--workers", "1", "--seed", "2", "--out", str(tmp_path / "study"), "--quiet"],
+                          env=env)
+    assert study.exit_code == 0, study.output
+    table = study.output.split("Per-replication results")[0]
+    assert_fits(table)
+    assert "wide - long +- MC SE" in table and "in tol." in table
+    # every quantity key is shown whole
+    for key in ("mean.intercept", "cov.intercept.slope", "var.residual"):
+        assert re.search(rf"^{re.escape(key)}$", table, re.M)

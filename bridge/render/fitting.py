@@ -35,8 +35,8 @@ def needed_width(table: Table) -> int:
 def number_columns(table: Table, headings: tuple[str, ...], rows: list[list[str]]) -> None:
     """Right-aligned columns never narrower than their widest cell (a header may wrap, a number never)."""
     for k, heading in enumerate(headings):
-        widest = max((len(row[k]) for row in rows), default=1)
-        table.add_column(heading, justify="right", min_width=max(widest, 1), overflow="fold")
+        widest = max([len(row[k]) for row in rows] + [len(word) for word in heading.split()] + [1])
+        table.add_column(heading, justify="right", min_width=widest, overflow="fold")
 
 
 def key_column(table: Table, heading: str, keys) -> None:

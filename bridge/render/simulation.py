@@ -46,10 +46,11 @@ def markdown_table(summary: SimulationSummary) -> str:
 
 def _caption(summary: SimulationSummary) -> str:
     return (f"{verdict_line(summary)}. Converged: wide form {summary.convergence['sem']:.0%}, long form "
-            f"{summary.convergence['mixed']:.0%}. * coverage outside its binomial band. wide - long: the mean "
+            f"{summary.convergence['mixed']:.0%}. cover: coverage of the 95% intervals; * outside its binomial "
+            "band. wide - long: the mean "
             "paired difference of the two forms' estimates on the same data sets, +- its Monte Carlo SE; "
-            "in tol.: share of replications whose reconciliation found the quantity within tolerance "
-            "(summary.md has the bands, Monte Carlo SEs of the bias and mean SEs).")
+            "in tol. (within tolerance): share of replications whose reconciliation found the quantity within its "
+            "tolerance (summary.md has it, the bands, Monte Carlo SEs of the bias and mean SEs).")
 
 
 def _paired(q) -> str:
@@ -58,16 +59,17 @@ def _paired(q) -> str:
 
 def _side_by_side(summary: SimulationSummary) -> Table:
     table = Table(title=Text(f"Monte Carlo study: {summary.description} under {summary.population}"),
-                  title_justify="left", header_style="bold", caption=Text(_caption(summary)), caption_justify="left")
+                  title_justify="left", header_style="bold", caption=Text(_caption(summary)), caption_justify="left",
+                  show_edge=False)
     key_column(table, "quantity", summary.keys)
-    headings = ("truth", "bias\nwide", "bias\nlong", "RMSE\nwide", "RMSE\nlong", "coverage\nwide",
-                "coverage\nlong", "wide - long\n+- MC SE", "in\ntol.")
+    headings = ("truth", "bias\nwide", "bias\nlong", "RMSE\nwide", "RMSE\nlong", "cover\nwide",
+                "cover\nlong", "wide - long\n+- MC SE")
     rows = []
     for key in summary.keys:
         sem, mixed = summary.row(key, "sem"), summary.row(key, "mixed")
         cover = [f"{q.coverage:.3f}" + ("" if q.within_band else "*") for q in (sem, mixed)]
         rows.append([_fmt(sem.truth), _fmt(sem.bias, 3), _fmt(mixed.bias, 3), _fmt(sem.rmse, 3),
-                     _fmt(mixed.rmse, 3), *cover, _paired(sem), f"{sem.agreement:.0%}"])
+                     _fmt(mixed.rmse, 3), *cover, _paired(sem)])
     number_columns(table, headings, rows)
     for key, row in zip(summary.keys, rows):
         table.add_row(Text(key), *row)
