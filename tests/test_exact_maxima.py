@@ -32,7 +32,6 @@ REL = 1e-5            # issue 9: every estimate within 1e-5 relative of the exac
 SE_SHARE = 1e-3       # ... or within 1e-3 of its standard error when it is near zero
 BOUND_FLOOR = 1e-7    # share of the outcome's variance allowed for a variance pinned at 0 (no SE there)
 TERMS = ("intercept", "slope", "quadratic")
-POLISH = pytest.mark.xfail(strict=False, reason="awaits issue 9 polishing")
 _FOLDER = Path(tempfile.mkdtemp(prefix="exact_maxima_"))
 
 
@@ -196,15 +195,12 @@ def test_interior_maxima_of_the_two_spaces_coincide():
 
 CASES = [("sleepstudy", "ml"), ("Orthodont", "ml"), ("BodyWeight", "ml"), ("ChickWeight", "ml"),
          ("ChickWeight", "reml"), ("BtheB", "ml"), ("BtheB", "reml")]
-# Cases that missed the rule when last measured (mark them with POLISH); empty since the polishing landed.
-SHORT: set[tuple[str, str, str]] = set()
 
 
 def _params():
     for item, method in CASES:
         for form in ("sem", "mixed"):
-            marks = [POLISH] if (item, method, form) in SHORT else []
-            yield pytest.param(item, method, form, marks=marks, id=f"{item}-{method}-{form}")
+            yield pytest.param(item, method, form, id=f"{item}-{method}-{form}")
 
 
 @pytest.mark.parametrize("item, method, form", list(_params()))

@@ -64,9 +64,8 @@ def test_a_library_that_stopped_short_and_is_not_refitted_leaves_the_verdict_und
                         lambda self, library, compiled, fit, refit: original(self, library, compiled, fit, refit, 0))
     rec = _run(tmp_path, "optimizer")
     assert rec.verdict is Verdict.UNDECIDED and rec.exit_code == 4, _table(rec)
-    failed = [c for c in rec.certificates if not c.passed]
-    assert [c.library for c in failed] == ["semopy"]
-    assert "log-likelihood units higher" in failed[0].reason
+    failed = {c.library: c for c in rec.certificates if not c.passed}
+    assert "semopy" in failed and "log-likelihood units higher" in failed["semopy"].reason
     assert not rec.explanations
     assert all(r.verdict is Verdict.UNDECIDED for r in rec.quantities)
 

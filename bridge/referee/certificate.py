@@ -111,7 +111,11 @@ def _safe(criterion: Criterion) -> Criterion:
 
 
 def gradient(f: Criterion, x: np.ndarray, steps: np.ndarray) -> np.ndarray:
-    """Central differences, one-sided where the criterion is undefined on one side (a bound)."""
+    """Fourth-order central differences, first-order one-sided where the criterion is undefined on one side.
+
+    The five-point stencil matters: near a flat or badly scaled maximum the error of plain central
+    differences (step^2 x third derivative) hides gains of 1e-8 log-likelihood units.
+    """
     g = np.zeros(len(x))
     f0 = f(x)
     for i in range(len(x)):
@@ -119,7 +123,11 @@ def gradient(f: Criterion, x: np.ndarray, steps: np.ndarray) -> np.ndarray:
         e[i] = steps[i]
         up, down = f(x + e), f(x - e)
         if np.isfinite(up) and np.isfinite(down):
-            g[i] = (up - down) / (2 * steps[i])
+            up2, down2 = f(x + 2 * e), f(x - 2 * e)
+            if np.isfinite(up2) and np.isfinite(down2):
+                g[i] = (8 * (up - down) - (up2 - down2)) / (12 * steps[i])
+            else:
+                g[i] = (up - down) / (2 * steps[i])
         elif np.isfinite(up):
             g[i] = (up - f0) / steps[i]
         elif np.isfinite(down):
