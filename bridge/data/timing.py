@@ -63,7 +63,7 @@ class DisplacementSplit:
     `between` estimates the variance of a person's own offset c_i and `within` the variance of the
     occasion-to-occasion jitter around it, by the one-way random-effects analysis of variance
     (method-of-moments estimators for unbalanced groups; Searle, Casella & McCulloch 1992,
-    Variance Components, Wiley, ch. 3), the between part truncated at 0. `mean` is the mean signed
+    Variance Components, Wiley, ch. 3; the chapter recalled from memory), the between part truncated at 0. `mean` is the mean signed
     displacement (a shared shift of every person's times).
     """
 
