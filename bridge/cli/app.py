@@ -1,7 +1,6 @@
 """The typer application and what every command shares: errors, progress, consoles, options."""
 from __future__ import annotations
 
-import os
 import sys
 import time
 from contextlib import contextmanager
@@ -61,11 +60,8 @@ def progress(quiet: bool):
 
 
 def stdout_console() -> Console:
-    """The console for results: the terminal's width; when output is redirected, COLUMNS or 120 columns."""
-    if sys.stdout.isatty():
-        return Console()
-    columns = os.environ.get("COLUMNS", "")
-    return Console(width=int(columns) if columns.isdigit() and int(columns) >= 40 else 120)
+    """The console for results: the terminal's width, or 120 columns when output is redirected."""
+    return Console(width=None if sys.stdout.isatty() else 120)
 
 
 def write_text(path: Path, text: str) -> None:

@@ -10,8 +10,8 @@ import typer
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
-from .app import SPEC, app, guarded, stdout_console, write_text
-from .timing import json_safe, refuse_inputs, writing
+from .app import SPEC, app, guarded, write_text
+from .timing import json_safe, lab_console, refuse_inputs, writing
 
 OUTPUTS = ("replications.parquet", "replications.csv", "summary.md", "summary.csv", "summary.json", "summary.png")
 
@@ -75,6 +75,6 @@ def simulate_command(
     write_text(out / "summary.json", json.dumps(json_safe(summary.to_dict()), indent=2, allow_nan=False) + "\n")
     with writing(out / "summary.png"):
         render.figure(summary, out / "summary.png")
-    stdout_console().print(render.terminal_table(summary))
+    lab_console().print(render.terminal_table(summary))
     typer.echo(f"\nPer-replication results: {raw}\nSummary: {out / 'summary.md'}, {out / 'summary.csv'}, "
                f"{out / 'summary.json'}\nFigure: {out / 'summary.png'}")

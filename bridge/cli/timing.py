@@ -9,7 +9,7 @@ from pathlib import Path
 import typer
 
 from ..errors import DataError
-from .app import QUIET, SPEC, app, fail, guarded, progress, stdout_console, write_text
+from .app import QUIET, SPEC, app, fail, guarded, progress, write_text
 
 JSON = typer.Option(None, "--json", help="Also write the result as JSON to this file ('-' for stdout only).")
 FIGURE = typer.Option(None, "--figure", help="Also draw the figure into this PNG file.")
@@ -34,6 +34,19 @@ def refuse_inputs(outputs: list[Path | None], inputs: list[Path]) -> None:
     for out in outputs:
         if out is not None and str(out) != "-" and any(out.resolve() == i.resolve() for i in inputs):
             fail(f"{out} is an input file; choose another output name")
+
+
+def lab_console():
+    """The timing lab's console: the terminal's width; when output is piped, COLUMNS (at least 40) or 120."""
+    import os
+    import sys
+
+    from rich.console import Console
+
+    if sys.stdout.isatty():
+        return Console()
+    columns = os.environ.get("COLUMNS", "")
+    return Console(width=int(columns) if columns.isdigit() and int(columns) >= 40 else 120)
 
 
 @contextmanager
@@ -62,7 +75,7 @@ def _emit(payload: dict, json_file: Path | None, view) -> None:
     if json_file is not None and str(json_file) == "-":
         typer.echo(text, nl=False)
         return
-    stdout_console().print(view)
+    lab_console().print(view)
     if json_file is not None:
         write_text(json_file, text)
 
