@@ -57,10 +57,9 @@ def test_yaml_example_loads_and_compiles(tmp_path, page, index, body):
     spec = tmp_path / "example.yaml"
     spec.write_text(yaml.safe_dump(example), encoding="utf-8")
     if example.get("model", {}).get("kind") == "cross-lagged":
-        from bridge.compile.panel import compile_panel
-        from bridge.data import shape_panel
+        from bridge.pipeline import compile_model
 
-        compiled = compile_panel(shape_panel(bridge.load(spec)))
+        compiled = compile_model(spec)
         assert compiled.keys and " ~ " in compiled.sem.text()
         return
     pair = bridge.compile_description(spec)

@@ -5,7 +5,7 @@ every V_i positive definite (`psd=False`); the long form with the maximum over p
 (`psd=True`) under the description's method. Where both maxima are interior they coincide under ML.
 
 Agreement rule (issue 9): within 1e-5 relative, or 1e-3 of the reference standard error for estimates near
-zero. A variance pinned at its bound has no standard error; there the floor is 1e-7 of the outcome's
+zero (within one SE of 0). A variance pinned at its bound has no standard error; there the floor is 1e-7 of the outcome's
 variance (common practice: zero to working precision on the data's own scale); the other quantities of a
 boundary solution (no standard errors there) are held to the relative bound alone.
 
@@ -138,18 +138,24 @@ def reference(item: str, method: str, degree: int, psd: bool) -> dict[str, tuple
     return out
 
 
+def allowed_gap(value: float, se: float, floor: float = 0.0) -> float:
+    """Issue 9's rule: 1e-5 relative; for a value near zero (within one standard error of 0) 1e-3 of its
+    SE when that is larger; a variance at its bound 0 (within `floor`) may sit `floor` away."""
+    near_zero = np.isfinite(se) and abs(value) < se
+    return max(REL * abs(value), SE_SHARE * se if near_zero else 0.0, floor if abs(value) <= floor else 0.0)
+
+
 def misses(rec: bridge.Reconciliation, form: str, ref: dict, item: str) -> dict[str, float]:
     """Quantities whose estimate misses the reference: key -> |gap| / allowed gap (> 1 fails).
 
-    Allowed: 1e-5 relative, or 1e-3 of the reference SE where it has one (not on a boundary); a variance
-    pinned at exactly 0 gets the floor BOUND_FLOOR x the outcome's variance instead.
+    Allowed: `allowed_gap`, with the floor BOUND_FLOOR x the outcome's variance.
     """
     floor = BOUND_FLOOR * float(np.var(frame(item)["y"]))
     out = {}
     assert {row.key for row in rec.quantities} == set(ref) - {"loglik"}
     for row in rec.quantities:
         value, se = ref[row.key]
-        allowed = max(REL * abs(value), SE_SHARE * se if np.isfinite(se) else 0.0, floor if value == 0 else 0.0)
+        allowed = allowed_gap(value, se, floor)
         gap = abs(getattr(row, form).estimate - value)
         if gap > allowed:
             out[row.key] = gap / allowed

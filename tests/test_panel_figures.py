@@ -26,9 +26,9 @@ import bridge
 from bridge.compile.graph import CONSTANT, EdgeKind, NodeKind, model_graph
 from bridge.pipeline import compile_cross_lagged
 from bridge.reconcile import Estimate
-from bridge.reconcile.lagged_summary import lagged_summary
-from bridge.reconcile.panel_fit import PanelSolution
-from bridge.reconcile.standardised import standardised_paths
+from bridge.families.cross_lagged.lagged_summary import lagged_summary
+from bridge.families.cross_lagged.fit import PanelSolution
+from bridge.families.cross_lagged.standardised import standardised_paths
 from bridge.reconcile.summary import report_content
 from bridge.render import diagram, tables
 from bridge.render.report import report_files

@@ -33,11 +33,7 @@ def draw_command(
     folder = out if out is not None else Path(f"{spec.stem}-figure")
     with guarded():
         if structure_only:
-            if pipeline.is_cross_lagged(spec):
-                compiled = pipeline.compile_cross_lagged(spec)
-                source = diagram.diagram_source(model_graph(compiled, compiled.relaxed or compiled.sem))
-            else:
-                source = diagram.diagram_source(model_graph(pipeline.compile_description(spec).sem))
+            source = diagram.diagram_source(pipeline.structure_graph(spec))
             files = diagram.figure_files(source, "path-diagram")
         else:
             content = report_content(pipeline.run(spec, progress=progress(quiet)))

@@ -12,7 +12,7 @@ whose nodes are the model's variables and whose edges are its paths:
 
 Edge keys are the edge kinds, so a pair of nodes holds at most one path of each kind.
 The graph's own attribute `family` says which builder made it: "growth" here, "cross-lagged"
-in `bridge.compile.panel_graph` (whose edges also carry the parameter's generated `label`).
+in `bridge.families.cross_lagged.graph` (whose edges also carry the parameter's generated `label`).
 """
 from __future__ import annotations
 
@@ -118,16 +118,14 @@ class NoGraph(SembridgeError):
 
 
 def model_graph(compiled, model=None) -> nx.MultiDiGraph:
-    """The graph of a compiled wide-form model: a growth model, or a cross-lagged plan's path model.
+    """The graph of a compiled wide-form model: a growth model, or another family's model.
 
-    For a cross-lagged plan, `model` names the path model that was fitted (the relaxed form of a
-    dynamic panel); by default the compiled one. See `bridge.compile.panel_graph` for its layout.
+    Another family's compiled object carries its family (`.family`), which draws its own graph;
+    `model` names the wide model that was fitted (the relaxed form of a dynamic panel, say).
     """
     if isinstance(compiled, CompiledGrowth):
         return growth_graph(compiled)
-    from .panel import CompiledPanel
-    from .panel_graph import panel_graph
-
-    if isinstance(compiled, CompiledPanel):
-        return panel_graph(compiled, model)
+    family = getattr(compiled, "family", None)
+    if family is not None and hasattr(family, "graph"):
+        return family.graph(compiled, model)
     raise NoGraph("this model family has no path figure")

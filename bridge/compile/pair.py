@@ -22,6 +22,13 @@ class CompiledPair:
     mixed: CompiledGrowth
 
     @property
+    def family(self):
+        """The growth family object (`bridge.families.contract.Family`)."""
+        from ..families.growth import FAMILY
+
+        return FAMILY
+
+    @property
     def comparable(self) -> bool:
         return self.plan.sem == self.plan.mixed
 

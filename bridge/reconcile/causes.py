@@ -2,7 +2,8 @@
 
 Each cause has a stable key (used in the JSON), a short title, and a plain
 explanation for an applied researcher. Detection and the harmonised refit that
-proves a cause live in `explain.py`; this module is only the words.
+proves a cause live in `explain.py`; this module is only the words. A model family adds its
+own causes (`bridge.families.<name>.causes`).
 """
 from __future__ import annotations
 
@@ -60,18 +61,6 @@ CATALOGUE: dict[str, Cause] = {c.key: c for c in (
           "fitted trajectories and the log-likelihood are the same (Biesanz et al. 2004, Psychological Methods "
           "9(1)). With a reduced random part (a random slope without a random intercept, say) a new origin "
           "changes the model itself, and the log-likelihoods differ."),
-    Cause("initial-conditions", "stable person differences related to where people start",
-          "The mixed model with a lagged outcome and a random person intercept assumes that the stable person "
-          "differences are unrelated to the first wave. With lagged outcomes that is rarely true: persons who "
-          "are high throughout started high. The wide form can let the person factor correlate with the first "
-          "wave (Allison, Williams & Moral-Benito 2017, Socius 3), which keeps the autoregressive and "
-          "cross-lagged effects consistent; the mixed model then overstates the autoregression."),
-    Cause("short-panel-bias", "person-mean centring of lagged outcomes in a short panel",
-          "The multilevel counterpart of the RI-CLPM centres each lagged outcome on the person's own mean. "
-          "That mean includes later occasions, so in short panels the centred lag is correlated with the "
-          "residual and the within-person autoregression is biased downward (Nickell 1981, Econometrica "
-          "49(6)); the RI-CLPM (Hamaker, Kuiper & Grasman 2015) separates traits from within-person "
-          "deviations without that bias. The two are not equivalent."),
     Cause("standard-errors", "equal estimates, different standard errors",
           "The estimates agree but the libraries' own standard errors differ. semopy's default uses the "
           "expected information, which ignores missing occasions; statsmodels reports variance-component "

@@ -33,6 +33,8 @@ def _largest(ctx: Context) -> str:
 
 
 def _gap_sentence(ctx: Context) -> str:
+    if not ctx.keys:
+        return ""
     key = _largest(ctx)
     before, after = ctx.alone.row(key) or ctx.base.row(key), ctx.full.row(key)
     closed = f"{after.difference:.4g}" if after else "gone (the term was removed)"

@@ -83,7 +83,7 @@ class Reconciliation:
     specifications: dict[str, str]
     caution: str
     pair: Any = field(default=None, compare=False, repr=False)  # the CompiledPair: model structure and data
-    # cross-lagged family: every parameter of both forms on the user's scale (`reconcile.panel_fit.PanelSolution`)
+    # cross-lagged family: every parameter of both forms on the user's scale (`families.cross_lagged.fit.PanelSolution`)
     solution: Any = field(default=None, compare=False, repr=False)
     certificates: tuple = ()    # `referee.certificate.Certificate` of every library solution
     undecided_reason: str = ""  # one line with the next step, when the verdict is undecided

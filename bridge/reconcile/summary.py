@@ -20,10 +20,9 @@ from typing import Any
 
 from scipy.stats import norm
 
-from ..compile import CompiledPair, FixedColumn, Key, cov_key, var_key
-from ..compile.graph import model_graph
+from ..compile import FixedColumn, Key, cov_key, var_key
 from ..spec import Term
-from .curves import TrajectoryData, trajectory_data
+from .curves import TrajectoryData
 from .result import Estimate, QuantityRow, Reconciliation
 
 CONFIDENCE = 0.95
@@ -195,13 +194,11 @@ def figure_estimates(rec: Reconciliation) -> dict[Key, Estimate]:
     """
     out = {row.key: row.sem for row in rec.quantities}
     if rec.solution is not None:
-        from ..compile.panel_graph import nuisance_key
-
         solution, compiled = rec.solution, rec.pair
         for statement in solution.model.statements:
             label = statement.label
             if label and label in solution.wide:
-                out.setdefault(compiled.keys.get(label) or nuisance_key(compiled, statement),
+                out.setdefault(compiled.keys.get(label) or compiled.family.nuisance_key(compiled, statement),
                                Estimate(solution.wide[label], solution.wide_se.get(label, math.nan)))
     return out
 
@@ -221,22 +218,14 @@ class ReportContent:
     trajectories: TrajectoryData | None = None
     graph: Any = field(default=None, compare=False, repr=False)   # networkx graph of the wide form
     estimates: dict = field(default_factory=dict, compare=False, repr=False)
-    lagged: Any = None          # reconcile.lagged_summary.LaggedSummary
-    standardised: Any = None    # reconcile.standardised.StandardisedPaths
+    lagged: Any = None          # the cross-lagged family's LaggedSummary (families/cross_lagged/lagged_summary.py)
+    standardised: Any = None    # its StandardisedPaths (families/cross_lagged/standardised.py)
 
 
 def report_content(rec: Reconciliation) -> ReportContent:
     """The tables' numbers, the figures' data and the model's graph for one reconciliation."""
     lines = correspondence_lines(rec)
-    if isinstance(rec.pair, CompiledPair):
-        return ReportContent(reconciliation=rec, correspondence=lines, mixed=mixed_summary(rec),
-                             trajectories=trajectory_data(rec), graph=model_graph(rec.pair.sem),
-                             estimates=figure_estimates(rec))
-    if rec.solution is None:
+    family = getattr(rec.pair, "family", None)   # the compiled models carry their family (the contract)
+    if family is None:
         return ReportContent(reconciliation=rec, correspondence=lines)
-    from .lagged_summary import lagged_summary
-    from .standardised import standardised_paths
-
-    return ReportContent(reconciliation=rec, correspondence=lines, graph=model_graph(rec.pair, rec.solution.model),
-                         estimates=figure_estimates(rec), lagged=lagged_summary(rec),
-                         standardised=standardised_paths(rec))
+    return ReportContent(reconciliation=rec, correspondence=lines, **family.report_parts(rec))

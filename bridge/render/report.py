@@ -167,7 +167,7 @@ def _explanations_section(content: ReportContent) -> str:
 def _specifications_section(content: ReportContent) -> str:
     texts = content.reconciliation.specifications
     blocks = (("Wide form: semopy model text", texts.get("wide", "")),
-              ("Long form: statsmodels MixedLM on its array interface", texts.get("long", "")),
+              (texts.get("long_heading", "Long form: statsmodels MixedLM on its array interface"), texts.get("long", "")),
               ("Generated names", texts.get("legend", "")))
     body = "".join(f"<h3>{_e(title)}</h3>\n<pre>{_e(text)}</pre>\n" for title, text in blocks)
     return f'<section id="specifications">\n<h2>Generated specifications</h2>\n{body}</section>\n'

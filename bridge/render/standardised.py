@@ -1,6 +1,6 @@
 """The standardised-paths figure (matplotlib, Agg): auto- and cross-lagged paths over waves, both forms.
 
-Pure: draws a `bridge.reconcile.standardised.StandardisedPaths`. Two panels side by side,
+Pure: draws a `StandardisedPaths` (bridge/families/cross_lagged/standardised.py). Two panels side by side,
 the wide form (SEM) left and the long form right, on a shared vertical axis. Wave-specific
 paths are points joined by thin lines, one point per wave; a time-invariant path is one
 horizontal line across the waves. SVG output is deterministic (no date, fixed ids).
@@ -13,7 +13,6 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402  (after choosing the backend)
 from matplotlib.figure import Figure  # noqa: E402
 
-from ..reconcile.standardised import StandardisedPaths  # noqa: E402
 from .trajectory import plain_text, figure_bytes  # noqa: E402
 
 _COLOURS = ("#2f5d8a", "#b5542b", "#3f7f4f", "#7a4f8f", "#8a7a2f", "#2f7f7f")
@@ -24,7 +23,7 @@ def _name(path) -> str:
     return plain_text(f"{path.source} → {path.target}")
 
 
-def standardised_figure(data: StandardisedPaths) -> Figure:
+def standardised_figure(data) -> Figure:
     """Both forms' standardised paths, one colour per path."""
     keys = list(dict.fromkeys(p.key for p in data.paths))
     with plt.rc_context({"svg.hashsalt": "sembridge", "font.family": "DejaVu Sans", "font.size": 9}):
@@ -50,7 +49,7 @@ def standardised_figure(data: StandardisedPaths) -> Figure:
     return figure
 
 
-def standardised_files(data: StandardisedPaths, stem: str = "standardised-paths") -> dict[str, bytes]:
+def standardised_files(data, stem: str = "standardised-paths") -> dict[str, bytes]:
     """SVG and PNG of the standardised-paths figure, by file name."""
     figure = standardised_figure(data)
     return {f"{stem}.{fmt}": figure_bytes(figure, fmt) for fmt in ("svg", "png")}

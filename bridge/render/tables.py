@@ -117,7 +117,7 @@ def _wave(wave) -> str:
 
 
 def lagged_coefficients_grid(summary) -> Grid:
-    """The coefficients of each outcome's lagged regression (a `reconcile.lagged_summary.LaggedSummary`)."""
+    """The coefficients of each outcome's lagged regression (the cross-lagged family's `LaggedSummary`)."""
     level = f"{summary.confidence:.0%}"
     rows = tuple((c.outcome, _wave(c.wave), c.effect.name, c.effect.estimate, c.effect.se, c.effect.z, c.effect.p,
                   c.effect.lower, c.effect.upper) for c in summary.coefficients)

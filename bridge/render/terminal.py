@@ -37,6 +37,10 @@ def quantity_table(rec: Reconciliation) -> Table:
     return table
 
 
+def _fmt6(value: float) -> str:
+    return "n/a" if value is None or not math.isfinite(value) else f"{value:.6f}"
+
+
 def _summary_lines(rec: Reconciliation) -> list[str]:
     t, d, ll = rec.timing, rec.data, rec.log_likelihood
     lines = [f"Description: {rec.description}",
@@ -49,8 +53,11 @@ def _summary_lines(rec: Reconciliation) -> list[str]:
         if p["level"] is not None:
             lines.append(f"Predictor {p['key']}: 1 when {p['column']} is {p['level']!r}, 0 at the reference "
                          f"level {p['reference']!r}")
-    lines.append(f"Log-likelihood: semopy {ll['sem']:.6f}, statsmodels {ll['mixed']:.6f}; referee on exact times "
-                 f"at the SEM solution {ll['referee_at_sem']:.6f}, at the mixed solution {ll['referee_at_mixed']:.6f}")
+    lines.append(f"Log-likelihood: semopy {_fmt6(ll['sem'])}, statsmodels {_fmt6(ll['mixed'])}; referee on exact "
+                 f"times at the SEM solution {_fmt6(ll['referee_at_sem'])}, at the mixed solution "
+                 f"{_fmt6(ll['referee_at_mixed'])}")
+    if d.get("log_likelihood_note"):
+        lines.append(d["log_likelihood_note"])
     for c in rec.certificates:
         status = "certified maximum" if c.passed else f"NOT certified: {c.reason}"
         lines.append(f"Certificate ({c.library}, {c.form} form, {c.criterion}): library {c.reported:.6f}, referee "

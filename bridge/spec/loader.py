@@ -28,6 +28,16 @@ _KEYS = {
 }
 _MISSING = object()
 
+#: Keys that belong to one model kind only: a description of another kind that sets them is refused.
+_KIND_OF_KEY = {
+    "data.outcome": Kind.GROWTH, "model.shape": Kind.GROWTH, "model.random": Kind.GROWTH,
+    "model.predictors": Kind.GROWTH, "model.categorical": Kind.GROWTH, "model.residuals": Kind.GROWTH,
+    "model.time_origin": Kind.GROWTH, "model.reference_levels": Kind.GROWTH, "forms": Kind.GROWTH,
+    "data.outcomes": Kind.CROSS_LAGGED, "model.variant": Kind.CROSS_LAGGED, "model.paths": Kind.CROSS_LAGGED,
+}
+#: Values that belong to one model kind only.
+_KIND_OF_VALUE = {("estimation.method", Method.REML.value): Kind.GROWTH}
+
 
 class _Reader:
     """Walks the parsed YAML, remembering where each key stood."""
@@ -123,6 +133,26 @@ def _parse(path: Path) -> tuple[Any, dict[str, int]]:
     if not isinstance(tree, dict):
         raise DescriptionError(f"{path.name}: expected a mapping with a 'data' section, found {type(tree).__name__}")
     return tree, _line_map(root) if root is not None else {}
+
+
+def _check_kind(r: _Reader) -> None:
+    """Refuse every key or value that the chosen model kind does not use, naming the kind that does."""
+    kind = r.get("model.kind", Kind.GROWTH.value)
+    if kind not in Kind.words():
+        return  # reported by the model section
+    for key, owner in _KIND_OF_KEY.items():
+        value = r.get(key)
+        if value is not _MISSING and owner.value != kind:
+            hint = (" (add 'kind: cross-lagged' under model for several outcomes)"
+                    if owner is Kind.CROSS_LAGGED else "")
+            r.problem(key, f"no '{key}' for model.kind {kind}: it is used by {owner.value} models{hint}", value)
+    for (key, word), owner in _KIND_OF_VALUE.items():
+        if r.get(key) == word and owner.value != kind:
+            r.problem(key, f"another value for model.kind {kind}: '{word}' is used by {owner.value} models", word)
+    if kind == Kind.CROSS_LAGGED.value and r.get("estimation.waves") is not _MISSING \
+            and r.get("data.layout") == Layout.WIDE.value:
+        r.problem("estimation.waves", "no waves for a wide cross-lagged layout: its column map gives the waves",
+                  r.get("estimation.waves"))
 
 
 def _data_section(r: _Reader, base: Path) -> DataSection | None:
@@ -253,6 +283,7 @@ def load(path: str | Path) -> Description:
     reader = _Reader(path.name, tree, lines)
     for section in _KEYS:
         reader.check_keys(section)
+    _check_kind(reader)
     data = _data_section(reader, path.parent)
     model = _model_section(reader)
     estimation = _estimation_section(reader)

@@ -9,8 +9,8 @@ import numpy as np
 import statsmodels.api as sm
 from statsmodels.regression.mixed_linear_model import MixedLM, MixedLMParams
 
-from ..compile.panel import LongEquation
-from ..errors import FitError
+from .model import LongEquation
+from ...errors import FitError
 
 
 @dataclass(frozen=True)
@@ -69,7 +69,7 @@ def fit_person_intercept(eq: LongEquation, n_waves: int, start: tuple[np.ndarray
                 kwargs["start_params"] = MixedLMParams.from_components(start[0], cov_re=np.array([[ratio]]))
             result, fits = model.fit(reml=False, **kwargs), 1
             while fits < 3:
-                again = model.fit(reml=False, method=["lbfgs"], start_params=result.params_object)
+                again = model.fit(reml=False, **{**kwargs, "start_params": result.params_object})
                 fits += 1
                 better = again.llf > result.llf + 1e-10 * abs(result.llf)
                 result = again if again.llf >= result.llf else result

@@ -17,9 +17,9 @@ from __future__ import annotations
 
 import networkx as nx
 
-from .panel import CompiledPanel
-from .path import PathModel, Statement
-from .quantities import Key
+from ...compile.path import PathModel, Statement
+from ...compile.quantities import Key
+from .model import CompiledPanel
 
 def _parts(node: str) -> tuple[str, int, int | None]:
     """(prefix, outcome, wave index or None) of a generated name: `v1_3` -> ("v", 1, 3), `k0` -> ("k", 0, None)."""
@@ -55,7 +55,7 @@ def _node_label(compiled: CompiledPanel, node: str) -> tuple[str, ...]:
 
 
 def _add_nodes(graph: nx.MultiDiGraph, compiled: CompiledPanel, model: PathModel) -> None:
-    from .graph import CONSTANT, NodeKind
+    from ...compile.graph import CONSTANT, NodeKind
 
     K = len(compiled.panel.names)
     for node in model.observed + model.latent:
@@ -84,7 +84,7 @@ def nuisance_key(compiled: CompiledPanel, statement: Statement) -> Key:
 
 def _edge(compiled: CompiledPanel, statement: Statement):
     """(tail, head, edge kind) of one statement."""
-    from .graph import CONSTANT, EdgeKind
+    from ...compile.graph import CONSTANT, EdgeKind
 
     s = statement
     if s.op == "~":
@@ -99,7 +99,7 @@ def _edge(compiled: CompiledPanel, statement: Statement):
 
 
 def _add_edges(graph: nx.MultiDiGraph, compiled: CompiledPanel, model: PathModel) -> None:
-    from .graph import EdgeKind
+    from ...compile.graph import EdgeKind
 
     explained = {s.lhs for s in model.statements if s.op == "~"} | {s.rhs for s in model.statements if s.op == "=~"}
     for s in model.statements:

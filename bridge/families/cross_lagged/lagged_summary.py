@@ -5,7 +5,7 @@ the person's mean for the RI-CLPM; one set per wave when paths are wave-specific
 estimate, standard error, z, p and 95% interval; the residual variance (per wave when
 wave-specific) and, when the long form has one, the variance of the random person
 intercept; the rows the regression used and its log-likelihood. All on the user's scale,
-from `reconcile.panel_fit.PanelSolution`; the Wald statistics as for growth models.
+from `families.cross_lagged.fit.PanelSolution`; the Wald statistics as for growth models.
 """
 from __future__ import annotations
 
@@ -14,10 +14,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..compile.panel import CompiledPanel
-from ..spec import Paths, Variant
-from .result import Estimate, Reconciliation
-from .summary import CONFIDENCE, FixedEffect, wald
+from ...reconcile.result import Estimate, Reconciliation
+from ...reconcile.summary import CONFIDENCE, FixedEffect, wald
+from ...spec import Paths, Variant
+from .model import CompiledPanel
 
 
 @dataclass(frozen=True)

@@ -1,14 +1,16 @@
-"""The referee's work for the cross-lagged family: score, refit, translate, standard errors."""
+"""The referee's work for the cross-lagged family: the long equations as referee designs, translations, SEs."""
 from __future__ import annotations
 
 import numpy as np
 
-from ..compile import GrowthParameters, LongDesign
-from ..compile.panel import CompiledPanel, LongEquation
-from ..fit.lagged import EquationFit
-from .hessian import numerical_hessian, variance_standard_errors
-from .likelihood import Referee
-from .panel import PathReferee
+from ...compile import GrowthParameters, LongDesign
+from ...referee.certificate import default_steps
+from ...referee.hessian import numerical_hessian, variance_standard_errors
+from ...referee.likelihood import Referee
+from ...referee.path import PathReferee
+from ...spec import Variant
+from .long_fit import EquationFit
+from .model import CompiledPanel, LongEquation
 
 
 def equation_design(eq: LongEquation, wave_specific: bool) -> LongDesign:
@@ -28,15 +30,21 @@ def equation_parameters(fit: EquationFit, eq: LongEquation, wave_specific: bool)
 
 
 def long_to_values(compiled: CompiledPanel, fits: list[EquationFit], nuisance: dict[str, float]) -> dict[str, float]:
-    """The long form's solution written in the wide form's labels (first-wave moments taken from `nuisance`)."""
-    values = {label: 0.0 if label.startswith("g") else v for label, v in nuisance.items()}
+    """The long form's solution written in the wide form's labels (first-wave moments taken from `nuisance`).
+
+    Separate mixed models (dynamic panel, RI-CLPM) leave the person effects unrelated to the first wave
+    and to each other, and the equations' residuals uncorrelated: those covariances are 0 in the long form.
+    """
+    separate = compiled.variant is not Variant.CLPM
+    values = {label: 0.0 if label.startswith("g") or (separate and label.startswith(("r", "ut"))) else v
+              for label, v in nuisance.items()}
     for eq, fit in zip(compiled.equations, fits):
         for t in np.unique(eq.wave):
             values.update(zip(eq.labels[t], fit.coefficients[t]))
             values[eq.residual[t]] = float(fit.residual[t])
         values[f"u{eq.outcome}"] = fit.person_variance
     for label in compiled.sem.labels:
-        if label.startswith("r"):
+        if label.startswith("r") and not separate:
             values[label] = _residual_covariance(compiled, fits, label)
     return {label: values[label] for label in nuisance}
 
@@ -68,7 +76,7 @@ def path_standard_errors(referee: PathReferee, values: dict[str, float]) -> dict
     def criterion(vector: np.ndarray) -> float:
         return referee.log_likelihood(dict(zip(labels, vector)))
 
-    steps = 1e-4 * np.maximum(np.abs(x), 1e-2)
+    steps = default_steps(x)   # the certificate's steps: never below 1e-6 of the largest value
     H = numerical_hessian(criterion, x, steps)
     try:
         cov = np.linalg.inv(-H) if np.all(np.isfinite(H)) else np.full(H.shape, np.nan)

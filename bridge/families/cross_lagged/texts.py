@@ -1,8 +1,8 @@
 """Human-readable texts of a compiled cross-lagged model: the long form in words, the generated names."""
 from __future__ import annotations
 
-from ..spec import Variant
-from .panel import CompiledPanel
+from ...spec import Variant
+from .model import CompiledPanel
 
 
 def long_text(compiled: CompiledPanel) -> str:
@@ -23,10 +23,17 @@ def long_text(compiled: CompiledPanel) -> str:
     return "\n".join(lines) + "\n"
 
 
+def long_heading(compiled: CompiledPanel) -> str:
+    """The heading over the long form's text, naming the library and model actually used."""
+    if compiled.variant is Variant.CLPM:
+        return "Long form: statsmodels OLS (least squares), one lagged regression per outcome"
+    return "Long form: statsmodels MixedLM (ML, array interface), one lagged regression per outcome"
+
+
 def legend(compiled: CompiledPanel) -> str:
     """What each generated name of the path model stands for."""
     names, waves = compiled.panel.names, compiled.panel.waves
-    lines = [f"v{k}_{t} = {name} at wave {w:g} x {compiled.scale:.6g}" for t, w in enumerate(waves)
+    lines = [f"v{k}_{t} = {name} at wave {w:g} x {compiled.scales[k]:.6g}" for t, w in enumerate(waves)
              for k, name in enumerate(names)]
     lines += {Variant.DYNAMIC_PANEL: [f"h{k} = stable person effect on {n}" for k, n in enumerate(names)],
               Variant.RI_CLPM: [f"k{k} = stable trait of {n}; w{k}_t = within-person part of {n} at wave t"

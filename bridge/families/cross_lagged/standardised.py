@@ -15,9 +15,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..compile.panel import CompiledPanel
-from ..spec import Paths, Variant
-from .result import Reconciliation
+from ...reconcile.result import Reconciliation
+from ...spec import Paths, Variant
+from .model import CompiledPanel
 
 _PATH = re.compile(r"^(?P<kind>a|c)(?:(?P<source>\d+)_)?(?P<target>\d+)(?:_w(?P<wave>\d+))?$")
 
