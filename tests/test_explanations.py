@@ -242,6 +242,10 @@ def test_time_coding_recovers_the_described_codings(reconciled):
     assert details["implied_origin_shift"] == pytest.approx((2.0 - 0.0) * 1.0, rel=1e-3)
     # Recoding time leaves the residual variance alone.
     assert rec.row("var.residual").verdict is Verdict.AGREE
+    # With a full random intercept + slope covariance a new origin and unit only reparameterise the model
+    # (Biesanz et al. 2004, Psychological Methods 9(1)): the log-likelihoods are equal, and the text says so.
+    assert details["log_likelihood"]["same"] is True
+    assert "only reparameterises" in _explanation(rec, "time-coding").evidence
 
 
 def test_optimizer_refit_on_body_weight_data(reconciled):

@@ -12,8 +12,8 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
 from .. import outputs
-from .app import SPEC, app, fail, guarded, stdout_console
-from .timing import json_safe
+from .app import SPEC, app, fail, guarded
+from .timing import json_safe, lab_console
 
 OUTPUTS = ("replications.parquet", "replications.csv", "summary.md", "summary.csv", "summary.json", "summary.png")
 
@@ -71,7 +71,7 @@ def simulate_command(
     raw = out / ("replications.csv" if csv else "replications.parquet")
     with guarded():
         outputs.write_folder(out, _files(summary, replications_frame(reps), summary_frame(summary), raw.name))
-    stdout_console().print(render.terminal_table(summary))
+    lab_console().print(render.terminal_table(summary))
     typer.echo(f"\nPer-replication results: {raw}\nSummary: {out / 'summary.md'}, {out / 'summary.csv'}, "
                f"{out / 'summary.json'}\nFigure: {out / 'summary.png'}")
     failed = [rep for rep in reps if rep.verdict == "failed"]

@@ -11,7 +11,7 @@ import typer
 from .. import outputs
 from ..errors import DataError
 from ..spec import load
-from .app import QUIET, SPEC, app, guarded, inputs_of, progress, stdout_console, write_text
+from .app import QUIET, SPEC, app, fail, guarded, inputs_of, progress, write_text
 
 JSON = typer.Option(None, "--json", help="Also write the result as JSON to this file ('-' for stdout only).")
 FIGURE = typer.Option(None, "--figure", help="Also draw the figure into this PNG file.")
@@ -38,6 +38,19 @@ def check_outputs(files: list[Path | None], inputs: list[Path]) -> None:
             outputs.check_file(path, inputs)
 
 
+def lab_console():
+    """The timing lab's console: the terminal's width; when output is piped, COLUMNS (at least 40) or 120."""
+    import os
+    import sys
+
+    from rich.console import Console
+
+    if sys.stdout.isatty():
+        return Console()
+    columns = os.environ.get("COLUMNS", "")
+    return Console(width=int(columns) if columns.isdigit() and int(columns) >= 40 else 120)
+
+
 @contextmanager
 def writing(path: Path):
     """A temporary path for a writer that needs a file name, moved onto `path` when it is complete;
@@ -62,28 +75,46 @@ def _emit(payload: dict, json_file: Path | None, view) -> None:
     if json_file is not None and str(json_file) == "-":
         typer.echo(text, nl=False)
         return
-    stdout_console().print(view)
+    lab_console().print(view)
     if json_file is not None:
         write_text(json_file, text)
 
 
 @app.command("timing")
 def timing_command(
-    data: Path = typer.Argument(..., help="A long-layout data file (.csv, .tsv or .parquet), one row per occasion."),
-    person: str = typer.Option(..., "--person", help="The column that identifies persons."),
-    time: str = typer.Option(..., "--time", help="The column with each occasion's time."),
+    data: Path = typer.Argument(..., help="A long-layout data file (.csv, .tsv or .parquet), one row per occasion, "
+                                          "or a growth description (.yaml) to also predict and measure what "
+                                          "rounding does to each estimate."),
+    person: str = typer.Option(None, "--person", help="The column that identifies persons (data files)."),
+    time: str = typer.Option(None, "--time", help="The column with each occasion's time (data files)."),
     waves: str = typer.Option(None, "--waves", help="The planned wave times, comma-separated (e.g. 0,6,12,18,24); "
                                                     "without it the grid is inferred as the reconciler does."),
+    with_offset: bool = typer.Option(False, "--with-offset",
+                                     help="Description only: add each person's mean displacement from the "
+                                          "grid as a person-level predictor and show the reconciliation."),
     json_file: Path = JSON,
     figure: Path = FIGURE,
+    quiet: bool = QUIET,
 ) -> None:
     """Classify a design's timing, show the time spread per wave and what rounding costs, and recommend a form."""
     from ..render import timing as render
-    from ..timing.inspect import inspect_file
+    from ..timing.inspect import inspect_description, inspect_file
 
-    check_outputs([json_file, figure], [data])
+    described = data.suffix.lower() in (".yaml", ".yml")
+    if described and (person or time or waves):
+        fail("--person, --time and --waves are for data files; a description names its own columns and waves")
+    if not described and (person is None or time is None):
+        fail("a data file needs --person and --time (or give a growth description, .yaml)")
+    if with_offset and not described:
+        fail("--with-offset needs a growth description (.yaml)")
     with guarded():
-        report = inspect_file(data, person, time, parse_waves(waves))
+        check_outputs([json_file, figure], inputs_of(load(data)) if described else [data])
+    with guarded():
+        if described:
+            with progress(quiet or (json_file is not None and str(json_file) == "-"))("fitting both forms"):
+                report = inspect_description(data, with_offset=with_offset)
+        else:
+            report = inspect_file(data, person, time, parse_waves(waves))
     _emit(report.to_dict(), json_file, render.timing_view(report))
     if figure is not None:
         with writing(figure) as temporary:

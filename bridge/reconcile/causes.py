@@ -56,8 +56,11 @@ CATALOGUE: dict[str, Cause] = {c.key: c for c in (
           "information about individual differences in growth for this model."),
     Cause("time-coding", "different time origin or units",
           "The two forms code time differently (another zero point or another unit). The intercept then "
-          "refers to another moment and the slope to another unit, so the numbers differ while the fitted "
-          "trajectories are the same."),
+          "refers to another moment and the slope to another unit, so the numbers differ. With a random "
+          "intercept and slope and their covariance free, recoding time only reparameterises the model: the "
+          "fitted trajectories and the log-likelihood are the same (Biesanz et al. 2004, Psychological Methods "
+          "9(1)). With a reduced random part (a random slope without a random intercept, say) a new origin "
+          "changes the model itself, and the log-likelihoods differ."),
     Cause("standard-errors", "equal estimates, different standard errors",
           "The estimates agree but the libraries' own standard errors differ. semopy's default uses the "
           "expected information, which ignores missing occasions; statsmodels reports variance-component "

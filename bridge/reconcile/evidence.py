@@ -82,12 +82,16 @@ def missing_data(ctx: Context) -> tuple[str, dict]:
 
 
 def time_binning(ctx: Context) -> tuple[str, dict]:
+    from ..timing.predict import binning_prediction
+
     timing = ctx.base.pair.mixed.shaped.timing
+    predicted, details = binning_prediction(ctx.base.pair.mixed.shaped, ctx.base.rows, ctx.base.plan.mixed.scale)
     text = (f"Times vary by person: the wide form moved each occasion to its nearest wave, by up to "
             f"{timing.displacement_max:.3g} ({timing.displacement_mean:.3g} on average). Refitting the mixed "
             f"model on the same rounded times closes the gaps, so rounding is the whole difference. Trust the "
-            f"exact-time mixed model. {_gap_sentence(ctx)}")
-    return text, {"displacement_max": timing.displacement_max, "displacement_mean": timing.displacement_mean}
+            f"exact-time mixed model. {_gap_sentence(ctx)} {predicted}".rstrip())
+    return text, {"displacement_max": timing.displacement_max, "displacement_mean": timing.displacement_mean,
+                  **details}
 
 
 def time_coding(ctx: Context) -> tuple[str, dict]:
@@ -103,8 +107,14 @@ def time_coding(ctx: Context) -> tuple[str, dict]:
         details["implied_origin_shift"] = (b0s - b0m) / b1m
         implied = (f" From the estimates: one SEM time unit is {b1s / b1m:.4g} mixed-model units and the SEM's "
                    f"zero lies {(b0s - b0m) / b1m:.4g} mixed-model units from the mixed model's.")
+    ll = ctx.alone.adjudication.log_likelihood
+    same = abs(ll["sem"] - ll["mixed"]) <= 1e-6 * max(1.0, abs(ll["mixed"]))
+    details["log_likelihood"] = {"sem": ll["sem"], "mixed": ll["mixed"], "same": bool(same)}
+    fit = ("Their log-likelihoods are equal, so the recoding only reparameterises the model." if same else
+           f"Their log-likelihoods differ ({ll['sem']:.4f} against {ll['mixed']:.4f}), so with this random part "
+           "the recoding changes the model, not only its parameters.")
     text = (f"The SEM codes time as (time - {sem.origin:g}) x {sem.scale:g}, the mixed model as (time - "
-            f"{mixed.origin:g}) x {mixed.scale:g}.{implied} Recoded to one time coding, the gaps close. "
+            f"{mixed.origin:g}) x {mixed.scale:g}.{implied} {fit} Recoded to one time coding, the gaps close. "
             f"{_gap_sentence(ctx)}")
     return text, details
 

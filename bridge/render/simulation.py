@@ -8,9 +8,10 @@ from rich.table import Table
 from rich.text import Text
 
 from ..timing.summary import SimulationSummary
+from .fitting import Fitting, key_column, number_columns, stacked
 
 _COLUMNS = ("quantity", "form", "truth", "used", "bias", "MC SE", "RMSE", "mean SE", "emp. SD", "coverage",
-            "band", "converged", "agreed")
+            "band", "converged", "within tolerance", "wide - long", "MC SE of wide - long")
 _FORM = {"sem": "wide (SEM)", "mixed": "long (mixed)"}
 
 
@@ -24,7 +25,8 @@ def _cells(summary: SimulationSummary) -> list[list[str]]:
     return [[q.quantity, _FORM[q.framework], _fmt(q.truth), str(q.used), _fmt(q.bias, 3), _fmt(q.bias_mcse, 2),
              _fmt(q.rmse, 3), _fmt(q.mean_se, 3), _fmt(q.empirical_sd, 3), f"{q.coverage:.3f}",
              f"[{q.band.low:.3f}, {q.band.high:.3f}]" + ("" if q.within_band else " outside"),
-             f"{q.convergence:.0%}", f"{q.agreement:.0%}"] for q in summary.quantities]
+             f"{q.convergence:.0%}", f"{q.agreement:.0%}", _fmt(q.paired_difference, 3),
+             _fmt(q.paired_difference_mcse, 2)] for q in summary.quantities]
 
 
 def verdict_line(summary: SimulationSummary) -> str:
@@ -42,23 +44,53 @@ def markdown_table(summary: SimulationSummary) -> str:
     return "\n".join(lines) + "\n\n" + verdict_line(summary) + "."
 
 
-def terminal_table(summary: SimulationSummary) -> Table:
-    """The summary for the terminal (rich): bias, RMSE and coverage of both forms side by side."""
-    caption = (f"{verdict_line(summary)}. Converged: wide form {summary.convergence['sem']:.0%}, long form "
-               f"{summary.convergence['mixed']:.0%}. * coverage outside its binomial band "
-               "(summary.md has the bands, Monte Carlo SEs and mean SEs).")
+def _caption(summary: SimulationSummary) -> str:
+    return (f"{verdict_line(summary)}. Converged: wide form {summary.convergence['sem']:.0%}, long form "
+            f"{summary.convergence['mixed']:.0%}. cover: coverage of the 95% intervals; * outside its binomial "
+            "band. wide - long: the mean "
+            "paired difference of the two forms' estimates on the same data sets, +- its Monte Carlo SE; "
+            "in tol. (within tolerance): share of replications whose reconciliation found the quantity within its "
+            "tolerance (summary.md has it, the bands, Monte Carlo SEs of the bias and mean SEs).")
+
+
+def _paired(q) -> str:
+    return f"{_fmt(q.paired_difference, 3)} +- {_fmt(q.paired_difference_mcse, 2)}"
+
+
+def _side_by_side(summary: SimulationSummary) -> Table:
     table = Table(title=Text(f"Monte Carlo study: {summary.description} under {summary.population}"),
-                  title_justify="left", header_style="bold", caption=Text(caption), caption_justify="left")
-    table.add_column("quantity", no_wrap=True)
-    for heading in ("truth", "bias\nSEM", "bias\nmixed", "RMSE\nSEM", "RMSE\nmixed", "coverage\nSEM",
-                    "coverage\nmixed", "agreed"):
-        table.add_column(heading, justify="right", no_wrap=True)
+                  title_justify="left", header_style="bold", caption=Text(_caption(summary)), caption_justify="left",
+                  show_edge=False)
+    key_column(table, "quantity", summary.keys)
+    headings = ("truth", "bias\nwide", "bias\nlong", "RMSE\nwide", "RMSE\nlong", "cover\nwide",
+                "cover\nlong", "wide - long\n+- MC SE")
+    rows = []
     for key in summary.keys:
         sem, mixed = summary.row(key, "sem"), summary.row(key, "mixed")
         cover = [f"{q.coverage:.3f}" + ("" if q.within_band else "*") for q in (sem, mixed)]
-        table.add_row(Text(key), _fmt(sem.truth), _fmt(sem.bias, 3), _fmt(mixed.bias, 3), _fmt(sem.rmse, 3),
-                      _fmt(mixed.rmse, 3), *cover, f"{sem.agreement:.0%}")
+        rows.append([_fmt(sem.truth), _fmt(sem.bias, 3), _fmt(mixed.bias, 3), _fmt(sem.rmse, 3),
+                     _fmt(mixed.rmse, 3), *cover, _paired(sem)])
+    number_columns(table, headings, rows)
+    for key, row in zip(summary.keys, rows):
+        table.add_row(Text(key), *row)
     return table
+
+
+def _one_row_per_form(summary: SimulationSummary):
+    blocks = []
+    for key in summary.keys:
+        sem, mixed = summary.row(key, "sem"), summary.row(key, "mixed")
+        blocks.append((key, [[name, _fmt(q.truth), _fmt(q.bias, 3), _fmt(q.rmse, 3),
+                              f"{q.coverage:.3f}" + ("" if q.within_band else "*"), extra]
+                             for name, q, extra in (("wide", sem, _paired(sem)),
+                                                    ("long", mixed, f"{sem.agreement:.0%} in tol."))]))
+    return stacked(f"Monte Carlo study: {summary.description} under {summary.population}", _caption(summary),
+                   ("form", "truth", "bias", "RMSE", "coverage", "wide - long +- MC SE"), blocks)
+
+
+def terminal_table(summary: SimulationSummary) -> Fitting:
+    """The summary for the terminal: both forms side by side, or one row per form on a narrow terminal."""
+    return Fitting(_side_by_side(summary), _one_row_per_form(summary))
 
 
 def figure(summary: SimulationSummary, path: Path) -> None:

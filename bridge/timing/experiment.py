@@ -65,10 +65,18 @@ class Grid:
     displacement_mean: float
     displacement_max: float
     shared_persons: int         # persons with two occasions on one column (the wide form cannot hold them)
+    gap_max: float = float("nan")   # the largest gap between neighbouring grid points (the extension may differ)
 
     @property
     def columns(self) -> int:
         return len(self.waves)
+
+    @property
+    def spacing(self) -> str:
+        """The grid's gaps: one number when even, the smallest and largest otherwise."""
+        if not np.isfinite(self.gap_max) or np.isclose(self.gap_max, self.step):
+            return f"{self.step:.4g}"
+        return f"{self.step:.4g} to {self.gap_max:.4g}"
 
 
 @dataclass(frozen=True)
@@ -105,16 +113,49 @@ class RoundingExperiment:
         se = self.exact_se.get(key, float("nan"))
         return [f.deviation[key] / se if se and np.isfinite(se) else float("nan") for f in self.fits]
 
+    def largest(self, index: int) -> tuple[str, float]:
+        """The quantity furthest from the exact-time value at one level, in standard errors."""
+        values = {k: self.in_standard_errors(k)[index] for k in self.keys}
+        values = {k: v for k, v in values.items() if np.isfinite(v)}
+        if not values:
+            return "", float("nan")
+        key = max(values, key=lambda k: abs(values[k]))
+        return key, values[key]
+
+    def worse_notes(self, margin: float = 0.1) -> tuple[str, ...]:
+        """Each finer level on which some quantity moved further from the exact-time value (by more than
+        `margin` SE) than on the level before, with what was measured and why."""
+        notes = []
+        for i in range(1, len(self.fits)):
+            if self.fits[i].same_as is not None:
+                continue
+            pairs = {k: self.in_standard_errors(k)[i - 1: i + 1] for k in self.keys}
+            worse = [f"{k} {a:+.2f} -> {b:+.2f} SE" for k, (a, b) in pairs.items()
+                     if np.isfinite(a) and np.isfinite(b) and abs(b) > abs(a) + margin]
+            if not worse:
+                continue
+            before, after = self.fits[i - 1].grid, self.fits[i].grid
+            move = f"the mean move went from {before.displacement_mean:.3g} to {after.displacement_mean:.3g}"
+            why = ("A smaller move lowers the predicted (average) change, but on one data set every grid moves "
+                   "different occasions in different directions, and that data-set-specific part need not "
+                   "shrink with the grid." if after.displacement_mean < 0.99 * before.displacement_mean else
+                   "The new grid points catch almost no occasions, so the finer grid cannot help.")
+            notes.append(f"A finer grid is worse here: level {after.level} against level {before.level}, "
+                         f"{'; '.join(worse)}; {move}. {why}")
+        return tuple(notes)
+
     def to_dict(self) -> dict:
         """Plain data for JSON (docs/timing-lab.md)."""
         return {"description": self.description, "exact": self.exact, "exact_se": self.exact_se,
-                "rule": self.rule, "stopped": self.stopped,
-                "levels": [{"level": f.grid.level, "step": f.grid.step, "waves": list(f.grid.waves),
+                "rule": self.rule, "stopped": self.stopped, "finer_but_worse": list(self.worse_notes()),
+                "levels": [{"level": f.grid.level, "step": f.grid.step, "spacing": f.grid.spacing,
+                            "deviation_se": {k: self.in_standard_errors(k)[i] for k in self.keys},
+                            "waves": list(f.grid.waves),
                             "columns": f.grid.columns, "patterns": f.grid.patterns,
                             "displacement": {"mean": f.grid.displacement_mean, "max": f.grid.displacement_max},
                             "sem": f.sem, "deviation": f.deviation, "refits": f.refits, "same_as": f.same_as,
                             "seconds": {"sem": f.seconds_sem, "mixed": f.seconds_mixed, "total": f.seconds_total}}
-                           for f in self.fits]}
+                           for i, f in enumerate(self.fits)]}
 
 
 def refine(waves: np.ndarray) -> np.ndarray:
@@ -143,7 +184,8 @@ def grid_at(level: int, design: tuple[float, ...], person: np.ndarray, times: np
     moved = np.abs(times - points[index])
     cells, repeats = np.unique(person.astype(np.int64) * len(points) + index, return_counts=True)
     shared = len(np.unique(cells[repeats > 1] // len(points)))
-    return Grid(level=level, step=float(np.diff(points).min()), waves=tuple(float(w) for w in points[used]),
+    return Grid(level=level, step=float(np.diff(points).min()), gap_max=float(np.diff(points).max()),
+                waves=tuple(float(w) for w in points[used]),
                 patterns=count_patterns(person, column.ravel()), displacement_mean=float(moved.mean()),
                 displacement_max=float(moved.max()), shared_persons=shared)
 

@@ -18,6 +18,7 @@ from ..data.reading import read_table
 from ..data.timing import Timing, classify
 from ..errors import DataError
 from .advice import Recommendation, recommend
+from .described import RoundingCheck, check_description
 
 HISTOGRAM_BINS = 60
 
@@ -64,9 +65,19 @@ class TimingReport:
     exact_patterns: int                               # its missing-data patterns
     histogram: TimeHistogram
     recommendation: Recommendation
+    check: RoundingCheck | None = None                # `timing SPEC`: the description fitted on its grid
 
     def to_dict(self) -> dict:
         """The report as plain data (the `timing --json` contract, docs/timing-lab.md)."""
+        out = self._plain()
+        if self.check is not None:
+            prediction = self.check.prediction
+            out["predicted_change"] = prediction.change if prediction else {}
+            out["predicted_change_se"] = prediction.in_se if prediction else {}
+            out["rounding_check"] = self.check.to_dict()
+        return out
+
+    def _plain(self) -> dict:
         return {"source": self.source, "person": self.person, "time": self.time, **self.timing.to_dict(),
                 "occasions_per_person": dict(zip(("min", "median", "max"), self.occasions_per_person)),
                 "complete_persons": self.complete_persons,
@@ -116,7 +127,8 @@ def _exact_columns(times: np.ndarray) -> np.ndarray:
 
 
 def summarise(person: np.ndarray, times: np.ndarray, waves: tuple[float, ...] | None = None, *,
-              source: str = "<data>", person_name: str = "person", time_name: str = "time") -> TimingReport:
+              source: str = "<data>", person_name: str = "person", time_name: str = "time",
+              check: RoundingCheck | None = None) -> TimingReport:
     """The timing report from integer person codes (0..N-1) and occasion times (one entry per occasion)."""
     timing, index = classify(person, times, waves)
     counts = np.bincount(person)
@@ -135,7 +147,7 @@ def summarise(person: np.ndarray, times: np.ndarray, waves: tuple[float, ...] | 
         grid_patterns=count_patterns(person, index),
         exact_columns=timing.n_distinct_times, exact_patterns=count_patterns(person, _exact_columns(times)),
         histogram=_histogram(times, index, len(timing.waves)))
-    return TimingReport(**report, recommendation=recommend(report))
+    return TimingReport(**report, recommendation=recommend({**report, "check": check}), check=check)
 
 
 def check_waves(waves: tuple[float, ...] | None) -> tuple[float, ...] | None:
@@ -178,3 +190,12 @@ def inspect_file(path: str | Path, person: str, time: str, waves: tuple[float, .
     path = Path(path)
     waves = check_waves(waves)
     return inspect_frame(read_table(path, text_columns=[person]), person, time, waves, source=path.name)
+
+
+def inspect_description(path, with_offset: bool = False) -> TimingReport:
+    """`timing SPEC`: the timing report of a growth description's data, with the predicted and the measured
+    change of every quantity on its wave grid (`described.check_description`)."""
+    shaped, check = check_description(path, with_offset=with_offset)
+    d = shaped.description.data
+    return summarise(shaped.person_index, shaped.times, shaped.description.estimation.waves, source=Path(str(d.path)).name,
+                     person_name=d.person, time_name=d.time, check=check)

@@ -57,7 +57,9 @@ class QuantitySummary:
     coverage: float
     band: CoverageBand
     convergence: float      # share of all replications in which this framework's fit converged
-    agreement: float        # share of all replications in which the two frameworks agreed on this quantity
+    agreement: float        # share of all replications whose reconciliation found this quantity within tolerance
+    paired_difference: float = float("nan")       # mean of (wide - long) over replications where both converged
+    paired_difference_mcse: float = float("nan")  # its Monte Carlo SE: SD of the differences / sqrt(count)
 
     @property
     def within_band(self) -> bool:
@@ -126,18 +128,36 @@ def _summarise_one(group: pd.DataFrame, total: int) -> dict:
                 agreement=float((group["verdict"] == "agree").sum()) / total)
 
 
+def paired_difference(frame: pd.DataFrame, quantity: str) -> tuple[float, float]:
+    """Mean of the wide-minus-long estimate over replications where both fits converged, and its Monte Carlo SE.
+
+    The two forms are fitted to the same data set in every replication, so their difference is paired:
+    its Monte Carlo SE is the SD of the differences / sqrt(count) (Morris, White & Crowther 2019).
+    """
+    part = frame[(frame["quantity"] == quantity) & frame["converged"].astype(bool) & np.isfinite(frame["estimate"])]
+    wide = part.pivot_table(index="replication", columns="framework", values="estimate", aggfunc="first")
+    if not set(FRAMEWORKS) <= set(wide.columns):
+        return float("nan"), float("nan")
+    diff = (wide["sem"] - wide["mixed"]).dropna()
+    if len(diff) < 2:
+        return (float(diff.mean()) if len(diff) else float("nan")), float("nan")
+    return float(diff.mean()), float(diff.std(ddof=1) / np.sqrt(len(diff)))
+
+
 def summarise(replications: tuple[Replication, ...], description: str, population: str,
               seed: int) -> SimulationSummary:
-    """Bias, RMSE, coverage, convergence and agreement per quantity and framework."""
+    """Bias, RMSE, coverage, convergence, agreement and the paired wide-minus-long difference per quantity."""
     total = len(replications)
     frame = replications_frame(replications).dropna(subset=["quantity"])
     rows = []
     order = list(dict.fromkeys(frame["quantity"]))
     for quantity in order:
+        paired = paired_difference(frame, quantity)
         for framework in FRAMEWORKS:
             group = frame[(frame["quantity"] == quantity) & (frame["framework"] == framework)]
             if len(group):
-                rows.append(QuantitySummary(quantity=quantity, framework=framework, **_summarise_one(group, total)))
+                rows.append(QuantitySummary(quantity=quantity, framework=framework, **_summarise_one(group, total),
+                                            paired_difference=paired[0], paired_difference_mcse=paired[1]))
     verdicts = {v: sum(r.verdict == v for r in replications) for v in VERDICTS}
     convergence = {f: min((q.convergence for q in rows if q.framework == f), default=0.0) for f in FRAMEWORKS}
     return SimulationSummary(description=description, population=population, replications=total, seed=seed,
@@ -151,4 +171,6 @@ def summary_frame(summary: SimulationSummary) -> pd.DataFrame:
                           "mean": q.mean, "bias": q.bias, "bias_mcse": q.bias_mcse, "rmse": q.rmse,
                           "empirical_sd": q.empirical_sd, "mean_se": q.mean_se, "coverage": q.coverage,
                           "band_low": q.band.low, "band_high": q.band.high, "within_band": q.within_band,
-                          "convergence": q.convergence, "agreement": q.agreement} for q in summary.quantities])
+                          "convergence": q.convergence, "agreement": q.agreement,
+                          "paired_difference": q.paired_difference,
+                          "paired_difference_mcse": q.paired_difference_mcse} for q in summary.quantities])
