@@ -8,7 +8,6 @@ from __future__ import annotations
 
 from dataclasses import replace
 
-import numpy as np
 import pytest
 
 import bridge
@@ -17,7 +16,6 @@ import bridge.fit.sem
 import bridge.reconcile.explain as explain
 import bridge.reconcile.parameter_space as parameter_space
 import bridge.referee.adjudicate as adjudicate
-from bridge.fit import FitOutcome
 from bridge.reconcile import Verdict
 from bridge.reconcile.causes import CATALOGUE
 from bridge.reconcile.harmonise import HARMONISERS
