@@ -17,7 +17,7 @@ adaptive schemes of general derivative libraries spend many more of them.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
@@ -83,7 +83,6 @@ class Certificate:
     repairs: tuple[str, ...] = field(default=())
 
     def with_repair(self, text: str) -> "Certificate":
-        from dataclasses import replace
         return replace(self, repairs=self.repairs + (text,))
 
     def to_dict(self) -> dict:

@@ -12,7 +12,7 @@ the gain (`certificate.certify(at_solution=...)`) and through their own move che
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -119,7 +119,6 @@ def certify_growth(space: GrowthSpace, compiled: CompiledGrowth, params: GrowthP
     best = space.params(found.point)
     fixed_move = _fixed_move(space, compiled, params, best)
     if certificate.passed and fixed_move > 1.0:
-        from dataclasses import replace
         certificate = replace(certificate, passed=False, largest_move=max(certificate.largest_move, fixed_move),
                               reason=f"a fixed effect is {fixed_move:.3g} times the allowed distance from the "
                                      f"referee's maximum (allowed: {MOVE_RELATIVE:g} relative or {MOVE_SE:g} SE)")
