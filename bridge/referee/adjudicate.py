@@ -7,11 +7,11 @@ import numpy as np
 
 from ..compile import CompiledGrowth, CompiledPair, GrowthParameters, Key, LongDesign, cov_key, var_key
 from ..fit import FitOutcome, fit_mixed, fit_sem
+from ..compile.parameters import is_psd
 from ..fit.mixed import boundary_face
 from .certificate import Certificate
 from .hessian import fixed_standard_errors, variance_standard_errors
 from .likelihood import Referee
-from ..compile.parameters import is_psd
 from .spaces import certify_growth, space_of
 
 NEAR_SINGULAR = 1e-4  # smallest/largest eigenvalue of the person-effect covariance
@@ -187,9 +187,9 @@ def adjudicate(pair: CompiledPair, sem: FitOutcome, mixed: FitOutcome) -> Adjudi
     sem, sem_certificate = judge.certified("semopy", pair.sem, sem, lambda p: fit_sem(pair.sem, start=p))
     mixed, mixed_certificate = judge.certified(
         "statsmodels", pair.mixed, mixed, lambda p: fit_mixed(pair.mixed, reml, start=p, face=boundary_face(p.cov)))
-    checks = (LikelihoodCheck("semopy", "ml", sem.own_log_likelihood, judge.sem_score(sem.params)),
-              LikelihoodCheck("statsmodels", "reml" if reml else "ml", mixed.own_log_likelihood,
-                              judge.mixed_score(mixed.params)))
+    # the certificates already hold each library's value and the referee's at the same estimates
+    checks = tuple(LikelihoodCheck(c.library, c.criterion, c.reported, c.referee)
+                   for c in (sem_certificate, mixed_certificate))
     sem_home = pair.mixed if pair.comparable else pair.sem
     log_likelihood = {"sem": sem.own_log_likelihood, "mixed": mixed.own_log_likelihood,
                       "referee_at_sem": judge.exact_log_likelihood(sem_home, sem.params),
