@@ -378,3 +378,27 @@ def test_experiment_uses_one_residual_variance(tmp_path):
     description = {**DESCRIPTION, "model": {"random": ["intercept", "slope"], "residuals": "per-wave"}}
     experiment = run_experiment(load(spec_file(tmp_path, description)), Limits(max_levels=0), frame=frame)
     assert "var.residual" in experiment.exact and not any(k.startswith("var.residual.") for k in experiment.keys)
+
+
+@pytest.mark.parametrize("n,covered,position", [(40, 36, "inside"), (40, 34, "below"), (40, 40, "inside"),
+                                                (200, 199, "above"), (200, 183, "below")])
+def test_coverage_band_is_said_in_words(n, covered, position):
+    # The central 95% of Binomial(n, 0.95) / n (Morris, White & Crowther 2019): [0.875, 1.000] for 40
+    # intervals and [0.920, 0.980] for 200 (exact binomial quantiles, scipy.stats.binom.ppf)
+    from bridge.render.simulation import markdown_table, terminal_table
+    from bridge.timing.summary import QuantitySummary, SimulationSummary
+    from rich.console import Console
+
+    band = coverage_band(n)
+    rows = tuple(QuantitySummary("mean.slope", form, 1.0, n, 1.0, 0.0, 0.01, 0.1, 0.1, 0.1, covered / n, band,
+                                 1.0, 1.0) for form in ("sem", "mixed"))
+    summary = SimulationSummary("d", "p", n, 1, rows, {"agree": n, "explained": 0, "unexplained": 0, "failed": 0},
+                                {"sem": 1.0, "mixed": 1.0}, 1.0)
+    assert rows[0].band_position == position
+    shown = {40: "[0.875, 1.000]", 200: "[0.920, 0.980]"}[n]
+    assert f"| {covered / n:.3f} | {shown} | {position} |" in markdown_table(summary)
+    for width in (200, 80):
+        console = Console(width=width, record=True)
+        console.print(terminal_table(summary))
+        text = console.export_text()
+        assert position in text and "*" not in text

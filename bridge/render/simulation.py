@@ -11,7 +11,7 @@ from ..timing.summary import SimulationSummary
 from .fitting import Fitting, key_column, number_columns, stacked
 
 _COLUMNS = ("quantity", "form", "truth", "used", "bias", "MC SE", "RMSE", "mean SE", "emp. SD", "coverage",
-            "band", "converged", "within tolerance", "wide - long", "MC SE of wide - long")
+            "band", "coverage band", "converged", "within tolerance", "wide - long", "MC SE of wide - long")
 _FORM = {"sem": "wide (SEM)", "mixed": "long (mixed)"}
 
 
@@ -24,7 +24,7 @@ def _fmt(value: float, digits: int = 4) -> str:
 def _cells(summary: SimulationSummary) -> list[list[str]]:
     return [[q.quantity, _FORM[q.framework], _fmt(q.truth), str(q.used), _fmt(q.bias, 3), _fmt(q.bias_mcse, 2),
              _fmt(q.rmse, 3), _fmt(q.mean_se, 3), _fmt(q.empirical_sd, 3), f"{q.coverage:.3f}",
-             f"[{q.band.low:.3f}, {q.band.high:.3f}]" + ("" if q.within_band else " outside"),
+             f"[{q.band.low:.3f}, {q.band.high:.3f}]", q.band_position,
              f"{q.convergence:.0%}", f"{q.agreement:.0%}", _fmt(q.paired_difference, 3),
              _fmt(q.paired_difference_mcse, 2)] for q in summary.quantities]
 
@@ -46,8 +46,8 @@ def markdown_table(summary: SimulationSummary) -> str:
 
 def _caption(summary: SimulationSummary) -> str:
     return (f"{verdict_line(summary)}. Converged: wide form {summary.convergence['sem']:.0%}, long form "
-            f"{summary.convergence['mixed']:.0%}. cover: coverage of the 95% intervals; * outside its binomial "
-            "band. wide - long: the mean "
+            f"{summary.convergence['mixed']:.0%}. cover: coverage of the 95% intervals; band: where that coverage lies "
+            "against its binomial band (inside, below or above). wide - long: the mean "
             "paired difference of the two forms' estimates on the same data sets, +- its Monte Carlo SE; "
             "in tol. (within tolerance): share of replications whose reconciliation found the quantity within its "
             "tolerance (summary.md has it, the bands, Monte Carlo SEs of the bias and mean SEs).")
@@ -63,13 +63,13 @@ def _side_by_side(summary: SimulationSummary) -> Table:
                   show_edge=False)
     key_column(table, "quantity", summary.keys)
     headings = ("truth", "bias\nwide", "bias\nlong", "RMSE\nwide", "RMSE\nlong", "cover\nwide",
-                "cover\nlong", "wide - long\n+- MC SE")
+                "band\nwide", "cover\nlong", "band\nlong", "wide - long\n+- MC SE")
     rows = []
     for key in summary.keys:
         sem, mixed = summary.row(key, "sem"), summary.row(key, "mixed")
-        cover = [f"{q.coverage:.3f}" + ("" if q.within_band else "*") for q in (sem, mixed)]
         rows.append([_fmt(sem.truth), _fmt(sem.bias, 3), _fmt(mixed.bias, 3), _fmt(sem.rmse, 3),
-                     _fmt(mixed.rmse, 3), *cover, _paired(sem)])
+                     _fmt(mixed.rmse, 3), f"{sem.coverage:.3f}", sem.band_position, f"{mixed.coverage:.3f}",
+                     mixed.band_position, _paired(sem)])
     number_columns(table, headings, rows)
     for key, row in zip(summary.keys, rows):
         table.add_row(Text(key), *row)
@@ -81,11 +81,11 @@ def _one_row_per_form(summary: SimulationSummary):
     for key in summary.keys:
         sem, mixed = summary.row(key, "sem"), summary.row(key, "mixed")
         blocks.append((key, [[name, _fmt(q.truth), _fmt(q.bias, 3), _fmt(q.rmse, 3),
-                              f"{q.coverage:.3f}" + ("" if q.within_band else "*"), extra]
+                              f"{q.coverage:.3f}", q.band_position, extra]
                              for name, q, extra in (("wide", sem, _paired(sem)),
                                                     ("long", mixed, f"{sem.agreement:.0%} in tol."))]))
     return stacked(f"Monte Carlo study: {summary.description} under {summary.population}", _caption(summary),
-                   ("form", "truth", "bias", "RMSE", "coverage", "wide - long +- MC SE"), blocks)
+                   ("form", "truth", "bias", "RMSE", "coverage", "band", "wide - long +- MC SE"), blocks)
 
 
 def terminal_table(summary: SimulationSummary) -> Fitting:

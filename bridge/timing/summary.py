@@ -66,6 +66,13 @@ class QuantitySummary:
         return bool(self.band.low <= self.coverage <= self.band.high)
 
     @property
+    def band_position(self) -> str:
+        """Where the observed coverage lies against its band, in words: inside, below or above."""
+        if self.coverage < self.band.low:
+            return "below"
+        return "above" if self.coverage > self.band.high else "inside"
+
+    @property
     def relative_bias(self) -> tuple[float, float]:
         """Bias and 2 Monte Carlo SE, divided by |truth| (left as they are when the truth is 0)."""
         scale = abs(self.truth) if self.truth else 1.0
@@ -97,6 +104,7 @@ class SimulationSummary:
         out = asdict(self)
         for item, q in zip(out["quantities"], self.quantities):
             item["within_band"] = q.within_band
+            item["band_position"] = q.band_position
         return out
 
 
@@ -171,6 +179,7 @@ def summary_frame(summary: SimulationSummary) -> pd.DataFrame:
                           "mean": q.mean, "bias": q.bias, "bias_mcse": q.bias_mcse, "rmse": q.rmse,
                           "empirical_sd": q.empirical_sd, "mean_se": q.mean_se, "coverage": q.coverage,
                           "band_low": q.band.low, "band_high": q.band.high, "within_band": q.within_band,
+                          "band_position": q.band_position,
                           "convergence": q.convergence, "agreement": q.agreement,
                           "paired_difference": q.paired_difference,
                           "paired_difference_mcse": q.paired_difference_mcse} for q in summary.quantities])
