@@ -113,10 +113,27 @@ def test_mixed_model_statistics(report):
     assert fit.log_likelihood == pytest.approx(result["log_likelihood"]["mixed"])
     assert fit.aic == pytest.approx(-2 * fit.log_likelihood + 16)
     assert fit.bic == pytest.approx(-2 * fit.log_likelihood + 8 * math.log(320))
-    covariance = next(v for v in summary.variances if v.kind == "covariance")
-    variances = [v.estimate for v in summary.variances if v.kind == "variance"]
-    assert covariance.correlation == pytest.approx(covariance.estimate / math.sqrt(variances[0] * variances[1]))
     assert "AIC" in text(files, "mixed-model.md") and "log-likelihood" in text(files, "fit.csv")
+
+
+def test_person_effects_are_a_matrix_with_correlations_above_the_diagonal(report):
+    _, files, result, _ = report
+    q = {item["key"]: item["mixed"] for item in result["quantities"]}
+    a, b, c, e = (q[k] for k in ("var.intercept", "cov.intercept.slope", "var.slope", "var.residual"))
+
+    def bracketed(item) -> str:
+        return f"{item['estimate']!r} ({item['se']!r})"
+
+    # correlation = covariance / (SD x SD) (common practice)
+    r = b["estimate"] / math.sqrt(a["estimate"] * c["estimate"])
+    rows = list(csv.reader(io.StringIO(text(files, "variance-components.csv"))))
+    assert rows[0] == ["person effect", "intercept", "slope"]
+    assert rows[1][:2] == ["intercept", bracketed(a)] and float(rows[1][2]) == pytest.approx(r, rel=1e-12)
+    assert rows[2] == ["slope", bracketed(b), bracketed(c)]
+    assert rows[3] == ["residual variance", bracketed(e), ""]
+    md = text(files, "mixed-model.md")
+    assert f"| intercept | {number(a['estimate'])} ({number(a['se'])}) | {number(r)} |" in md
+    assert "| SD |" not in md and "| correlation |" not in md
 
 
 def test_under_reml_the_information_criteria_use_the_reml_criterion(report):

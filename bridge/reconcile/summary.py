@@ -1,9 +1,8 @@
 """The numbers behind the report's tables, computed once from a reconciliation.
 
 The mixed-model summary holds the long form's fixed effects (estimate, standard
-error, z, p, 95% interval), its variance components (variances with their standard
-deviations, covariances with their correlations, the residual variance) and its fit
-statistics. The correspondence lines put every quantity's two estimates side by side
+error, z, p, 95% interval), its variance components (listed, and as the person effects'
+covariance matrix with correlations and the residual variance) and its fit statistics. The correspondence lines put every quantity's two estimates side by side
 with the verdict and the causes that explain a difference. Renderers only lay these
 out; nothing here depends on an output format.
 
@@ -57,6 +56,20 @@ class VarianceComponent:
 
 
 @dataclass(frozen=True)
+class PersonEffectMatrix:
+    """The person effects' covariance matrix with its standard errors, and the residual variance.
+
+    `covariance[i][j]` holds the (co)variance of effects i and j (symmetric, with the referee's SE);
+    `correlation[i][j]` their correlation (None on the diagonal or where a variance is not positive).
+    """
+
+    names: tuple[str, ...]
+    covariance: tuple[tuple[Estimate, ...], ...]
+    correlation: tuple[tuple[float | None, ...], ...]
+    residual: Estimate | None
+
+
+@dataclass(frozen=True)
 class FitStatistics:
     persons: int
     observations: int
@@ -76,6 +89,7 @@ class MixedModelSummary:
     fixed: tuple[FixedEffect, ...]
     variances: tuple[VarianceComponent, ...]
     fit: FitStatistics
+    person_effects: PersonEffectMatrix | None = None
     confidence: float = CONFIDENCE
 
 
@@ -151,6 +165,22 @@ def _variance_components(rec: Reconciliation, values: dict[Key, Estimate]) -> tu
     return tuple(out)
 
 
+def person_effect_matrix(rec: Reconciliation, values: dict[Key, Estimate]) -> PersonEffectMatrix:
+    """The long form's person-effect covariance as a matrix over its random terms, with the residual variance."""
+    terms = rec.pair.mixed.random_terms
+    missing = Estimate(math.nan, math.nan)
+
+    def entry(a: Term, b: Term) -> Estimate:
+        first, second = sorted((a, b), key=terms.index)
+        return values.get(var_key(a) if a is b else cov_key(first, second), missing)
+
+    cov = tuple(tuple(entry(a, b) for b in terms) for a in terms)
+    corr = tuple(tuple(None if i == j else _correlation(cov[i][j].estimate, cov[i][i].estimate, cov[j][j].estimate)
+                       for j in range(len(terms))) for i in range(len(terms)))
+    return PersonEffectMatrix(names=tuple(t.value for t in terms), covariance=cov, correlation=corr,
+                              residual=values.get("var.residual"))
+
+
 def _fit_statistics(rec: Reconciliation, n_fixed: int, n_variance: int) -> FitStatistics:
     form = rec.data["forms"]["mixed"]
     reml = rec.data["method"] == "reml"
@@ -170,7 +200,8 @@ def mixed_summary(rec: Reconciliation, confidence: float = CONFIDENCE) -> MixedM
                   for c in rec.pair.mixed.fixed_columns if c.key in values)
     variances = _variance_components(rec, values)
     return MixedModelSummary(fixed=fixed, variances=variances,
-                             fit=_fit_statistics(rec, len(fixed), len(variances)), confidence=confidence)
+                             fit=_fit_statistics(rec, len(fixed), len(variances)),
+                             person_effects=person_effect_matrix(rec, values), confidence=confidence)
 
 
 def _line(row: QuantityRow, titles: dict[str, str]) -> CorrespondenceLine:

@@ -15,11 +15,24 @@ from typing import Union
 from ..reconcile.summary import CorrespondenceLine, MixedModelSummary
 from .formats import exact, number, p_value, spreadsheet_text
 
-Cell = Union[str, int, float, None]
 
-#: A cell is text, a count, a number (NaN when it could not be computed) or None when it does not apply.
-#: Column kinds: how a cell is printed. `text` as is, `number` four significant digits, `p` a p-value,
-#: `stat` a fit statistic (integers as they are, other numbers with three decimals).
+@dataclass(frozen=True)
+class Bracketed:
+    """A cell holding an estimate with its standard error in brackets; `flag` marks a boundary solution."""
+
+    estimate: float
+    se: float
+    flag: bool = False
+
+    def text(self, write) -> str:
+        return f"{write(self.estimate)} ({write(self.se)})" + (" *" if self.flag else "")
+
+
+Cell = Union[str, int, float, Bracketed, None]
+
+#: A cell is text, a count, a number (NaN when it could not be computed), an estimate with its SE, or None
+#: when it does not apply. Column kinds: how a cell is printed. `text` as is, `number` four significant
+#: digits, `p` a p-value, `stat` a fit statistic (integers as they are, other numbers with three decimals).
 TEXT, NUMBER, P, STAT = "text", "number", "p", "stat"
 
 
@@ -40,6 +53,8 @@ def _cell(value: Cell, kind: str) -> str:
         return ""
     if isinstance(value, str):
         return value
+    if isinstance(value, Bracketed):
+        return value.text(number)
     if kind == P:
         return p_value(value)
     if kind == STAT and isinstance(value, int):
@@ -54,6 +69,8 @@ def _csv_cell(value: Cell) -> str:
         return ""
     if isinstance(value, str):
         return spreadsheet_text(value)
+    if isinstance(value, Bracketed):
+        return value.text(exact)
     if isinstance(value, int):
         return str(value)
     return exact(value)
@@ -76,14 +93,29 @@ BOUNDARY_NOTE = ("*: the solution lies on the boundary of the parameter space (a
 
 
 def variance_grid(summary: MixedModelSummary) -> Grid:
-    flagged = any(v.se_flag for v in summary.variances)
+    """The person effects' covariance as a small matrix, then the residual variance.
+
+    Variances on the diagonal and covariances below it, each with its SE in brackets; correlations above it.
+    """
+    m = summary.person_effects
+    size = len(m.names)
+
+    def cell(i: int, j: int) -> Cell:
+        if j > i:
+            return m.correlation[i][j]
+        e = m.covariance[i][j]
+        return Bracketed(e.estimate, e.se, bool(e.se_flag))
+
+    rows = tuple((name, *(cell(i, j) for j in range(size))) for i, name in enumerate(m.names))
+    if m.residual is not None:
+        rows += (("residual variance", Bracketed(m.residual.estimate, m.residual.se, bool(m.residual.se_flag)),
+                  *([None] * (size - 1))),)
+    flagged = any(isinstance(c, Bracketed) and c.flag for row in rows for c in row)
     return Grid("variance-components", "Long form (mixed model): person effects and residual",
-                ("component", "kind", "estimate", "SE", "SD", "correlation"),
-                (TEXT, TEXT, NUMBER, NUMBER, NUMBER, NUMBER),
-                tuple((v.name + (" *" if v.se_flag else ""), v.kind, v.estimate, v.se, v.sd, v.correlation)
-                      for v in summary.variances),
-                ("SD: square root of a variance; correlation: a covariance over the product of the two SDs.",)
-                + ((BOUNDARY_NOTE,) if flagged else ()))
+                ("person effect", *m.names), (TEXT,) + (NUMBER,) * size, rows,
+                ("Diagonal: variances; below it: covariances, each with its standard error (from the referee) in "
+                 "brackets; above it: correlations (the covariance over the product of the two standard "
+                 "deviations). The last row is the residual variance.",) + ((BOUNDARY_NOTE,) if flagged else ()))
 
 
 def fit_grid(summary: MixedModelSummary) -> Grid:
