@@ -6,6 +6,7 @@ from dataclasses import replace
 from ..compile.texts import pair_specifications
 from ..data import ShapedData
 from ..progress import Progress, quiet
+from ..referee.absolute_fit import growth_absolute_fit
 from .evaluation import Evaluation
 from .explain import Explained, explain
 from .result import Finding, Reconciliation, Verdict
@@ -94,6 +95,9 @@ def reconcile(shaped: ShapedData, base: Evaluation, progress: Progress = quiet) 
     adj = base.adjudication
     explained = explain(shaped, base, progress) if adj.certified else _undecided(base)
     texts = pair_specifications(base.pair)
+    with progress("testing both forms against the saturated model"):
+        absolute = growth_absolute_fit(base.pair, adj.sem.params, adj.mixed.params,
+                                       tuple(c.passed for c in adj.certificates))
     return Reconciliation(
         description=shaped.description.label, verdict=overall_verdict(explained.rows), quantities=explained.rows,
         timing=shaped.timing.to_dict(), log_likelihood={k: float(v) for k, v in adj.log_likelihood.items()},
@@ -104,4 +108,4 @@ def reconcile(shaped: ShapedData, base: Evaluation, progress: Progress = quiet) 
                       "kept": bool(r.kept)} for r in adj.refits),
         findings=_findings(base), explanations=explained.explanations, data=_data_summary(shaped, base),
         tolerance=DEFAULT_TOLERANCE.describe(), specifications=texts, caution=CAUTION, pair=base.pair,
-        certificates=adj.certificates, undecided_reason=undecided_reason(adj.certificates))
+        certificates=adj.certificates, undecided_reason=undecided_reason(adj.certificates), absolute_fit=absolute)

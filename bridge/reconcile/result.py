@@ -87,6 +87,7 @@ class Reconciliation:
     solution: Any = field(default=None, compare=False, repr=False)
     certificates: tuple = ()    # `referee.certificate.Certificate` of every library solution
     undecided_reason: str = ""  # one line with the next step, when the verdict is undecided
+    absolute_fit: Any = None    # `referee.absolute_fit.AbsoluteFit`: both forms against the saturated model
 
     @property
     def exit_code(self) -> int:

@@ -29,7 +29,7 @@ CONFIDENCE = 0.95
 
 @dataclass(frozen=True)
 class FixedEffect:
-    """One fixed effect of the long form with its Wald test and interval."""
+    """One estimate with its Wald test and interval: a fixed effect of the long form, or a wide-form parameter."""
 
     key: Key
     name: str
@@ -216,6 +216,28 @@ def correspondence_lines(rec: Reconciliation) -> tuple[CorrespondenceLine, ...]:
     return tuple(_line(row, titles) for row in rec.quantities)
 
 
+def wide_parameters(rec: Reconciliation, confidence: float = CONFIDENCE) -> tuple[FixedEffect, ...]:
+    """Every free parameter of the fitted wide form with its Wald test and interval, on the user's scale.
+
+    Named by quantity key and the wide form's words (with our generated label in brackets); standard
+    errors from the referee's Hessian of the wide form's own likelihood. Growth: one quantity row per
+    free parameter of the SEM. Cross-lagged: every label of the fitted path model, also those the
+    reconciliation does not compare (the first wave's moments, an RI-CLPM's wave means and trait variances).
+    """
+    words = {row.key: row.wide_name for row in rec.quantities}
+    if rec.solution is None:
+        return tuple(wald(row.key, row.wide_name, row.sem, confidence) for row in rec.quantities)
+    solution, compiled = rec.solution, rec.pair
+    out = {}
+    for statement in solution.model.statements:
+        label = statement.label
+        if label and label in solution.wide and label not in out:
+            key = compiled.keys.get(label) or compiled.family.nuisance_key(compiled, statement)
+            out[label] = wald(key, words.get(key, key), Estimate(solution.wide[label],
+                                                                 solution.wide_se.get(label, math.nan)), confidence)
+    return tuple(out.values())
+
+
 def figure_estimates(rec: Reconciliation) -> dict[Key, Estimate]:
     """The wide form's estimate of every free path the path figure draws, by quantity key.
 
@@ -225,12 +247,8 @@ def figure_estimates(rec: Reconciliation) -> dict[Key, Estimate]:
     """
     out = {row.key: row.sem for row in rec.quantities}
     if rec.solution is not None:
-        solution, compiled = rec.solution, rec.pair
-        for statement in solution.model.statements:
-            label = statement.label
-            if label and label in solution.wide:
-                out.setdefault(compiled.keys.get(label) or compiled.family.nuisance_key(compiled, statement),
-                               Estimate(solution.wide[label], solution.wide_se.get(label, math.nan)))
+        for parameter in wide_parameters(rec):
+            out.setdefault(parameter.key, Estimate(parameter.estimate, parameter.se))
     return out
 
 
@@ -251,6 +269,7 @@ class ReportContent:
     estimates: dict = field(default_factory=dict, compare=False, repr=False)
     lagged: Any = None          # the cross-lagged family's LaggedSummary (families/cross_lagged/lagged_summary.py)
     standardised: Any = None    # its StandardisedPaths (families/cross_lagged/standardised.py)
+    wide: tuple[FixedEffect, ...] = ()   # every free parameter of the wide form (`wide_parameters`)
 
 
 def report_content(rec: Reconciliation) -> ReportContent:
@@ -259,4 +278,5 @@ def report_content(rec: Reconciliation) -> ReportContent:
     family = getattr(rec.pair, "family", None)   # the compiled models carry their family (the contract)
     if family is None:
         return ReportContent(reconciliation=rec, correspondence=lines)
-    return ReportContent(reconciliation=rec, correspondence=lines, **family.report_parts(rec))
+    return ReportContent(reconciliation=rec, correspondence=lines, wide=wide_parameters(rec),
+                         **family.report_parts(rec))

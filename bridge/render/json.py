@@ -33,6 +33,28 @@ def _estimate(e) -> dict:
     return out
 
 
+def _form_fit(fit) -> dict | None:
+    if fit is None:
+        return None
+    return {"log_likelihood": _number(fit.log_likelihood), "parameters": fit.parameters,
+            "chi_square": _number(fit.chi_square), "df": fit.df, "p_value": _number(fit.p_value),
+            "rmsea": _number(fit.rmsea), "rmsea_ci90": [_number(v) for v in fit.rmsea_ci90],
+            "cfi": _number(fit.cfi), "tli": _number(fit.tli), "srmr": _number(fit.srmr)}
+
+
+def absolute_fit_dict(fit) -> dict | None:
+    """`referee.absolute_fit.AbsoluteFit` as JSON data: numbers, or null with the reason in words."""
+    if fit is None:
+        return None
+    baseline = None if fit.baseline_df is None else {"chi_square": _number(fit.baseline_chi_square),
+                                                     "df": fit.baseline_df}
+    return {"saturated_log_likelihood": _number(fit.saturated_log_likelihood), "persons": fit.persons,
+            "moments": fit.moments, "baseline": baseline,
+            "sem": _form_fit(fit.sem), "sem_reason": fit.sem_reason or None,
+            "mixed": _form_fit(fit.mixed), "mixed_reason": fit.mixed_reason or None,
+            "reason": fit.reason or None, "note": fit.note or None}
+
+
 def to_dict(rec: Reconciliation) -> dict:
     """The reconciliation as plain JSON-ready data (non-finite numbers become null)."""
     return {
@@ -44,6 +66,7 @@ def to_dict(rec: Reconciliation) -> dict:
         "log_likelihood": {k: _number(v) for k, v in rec.log_likelihood.items()},
         "referee_checks": _plain(list(rec.referee_checks)),
         "refits": _plain(list(rec.refits)),
+        "absolute_fit": absolute_fit_dict(rec.absolute_fit),
         "quantities": [{"key": r.key, "wide_name": r.wide_name, "long_name": r.long_name,
                         "sem": _estimate(r.sem), "mixed": _estimate(r.mixed),
                         "difference": _number(r.difference), "allowed_gap": _number(r.allowed_gap),

@@ -12,7 +12,7 @@ import html
 
 from .. import __version__
 from ..reconcile.summary import ReportContent
-from . import diagram, standardised, tables, trajectory
+from . import diagram, standardised, tables, trajectory, wide_tables
 from .formats import number
 from .json import to_json
 
@@ -85,6 +85,22 @@ def _model_section(content: ReportContent, figures: dict[str, bytes]) -> str:
     return (f'<section id="model">\n<h2>The model: path figure and {heading}</h2>\n<div class="side">\n'
             f"<figure>{figure}<figcaption>{_e(caption)}</figcaption></figure>\n"
             f'<div class="tables">\n{long_form}</div>\n</div>\n</section>\n')
+
+
+def _wide_grids(content: ReportContent) -> tuple:
+    """The wide form's parameter table and both forms' absolute fit (where there is a wide form)."""
+    if not content.wide:
+        return ()
+    fit = wide_tables.absolute_fit_grid(content.reconciliation.absolute_fit)
+    return (wide_tables.wide_parameters_grid(content.wide),) + ((fit,) if fit is not None else ())
+
+
+def _wide_section(content: ReportContent) -> str:
+    grids = _wide_grids(content)
+    if not grids:
+        return ""
+    body = "".join(tables.html_table(grid) for grid in grids)
+    return f'<section id="wide-form">\n<h2>The wide form: its parameters and absolute fit</h2>\n{body}</section>\n'
 
 
 def _standardised_section(figures: dict[str, bytes]) -> str:
@@ -176,7 +192,8 @@ def _specifications_section(content: ReportContent) -> str:
 def report_html(content: ReportContent, figures: dict[str, bytes]) -> str:
     """The self-contained page; `figures` holds at least `path-diagram.svg` and `trajectories.svg`."""
     rec = content.reconciliation
-    body = "".join([_header(content), _model_section(content, figures), _trajectory_section(figures),
+    body = "".join([_header(content), _model_section(content, figures), _wide_section(content),
+                    _trajectory_section(figures),
                     _standardised_section(figures),
                     _correspondence_section(content), _timing_section(content), _explanations_section(content),
                     _specifications_section(content),
@@ -213,6 +230,10 @@ def report_files(content: ReportContent) -> dict[str, bytes]:
         mixed = tables.mixed_grids(content.mixed)
         texts.update(_text_tables("mixed-model", mixed))
         grids = (*mixed, *grids)
+    wide = _wide_grids(content)
+    if wide:
+        texts.update(_text_tables("wide-form", wide))
+        grids = (*wide, *grids)
     if content.standardised is not None:
         files.update(standardised.standardised_files(content.standardised))
     if content.lagged is not None:

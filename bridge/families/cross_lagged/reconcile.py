@@ -20,6 +20,7 @@ from ...reconcile.result import Estimate, Explanation, Finding, QuantityRow, Rec
 from ...reconcile.tolerance import DEFAULT_TOLERANCE
 from ...referee.certificate import GAIN
 from ...spec import Variant
+from .absolute import panel_absolute_fit
 from .causes import CAUSES
 from .data import PanelData
 from .fit import PanelFits, PanelSolution, fit_panel
@@ -248,7 +249,9 @@ def run_panel(panel: PanelData, progress: Progress = quiet) -> Reconciliation:
         specifications={"wide": base.model.text(), "long": long_text(compiled), "legend": legend(compiled),
                         "long_heading": long_heading(compiled)},
         caution=CAUTION, pair=compiled, solution=base.solution, certificates=base.certificates,
-        undecided_reason=reason)
+        undecided_reason=reason,
+        absolute_fit=panel_absolute_fit(compiled, base.model, base.solution.wide,
+                                        all(c.passed for c in base.certificates if c.form == "wide")))
 
 
 def _log_likelihoods(fits: PanelFits) -> dict[str, float]:

@@ -1,0 +1,102 @@
+"""The two reference models of absolute fit over the waves: saturated and independence.
+
+Both model the outcome at every wave given the predictors (the predictors are conditioned on, as in
+both forms): each wave's mean is a free regression on the predictors (a free mean when there are
+none). The saturated model leaves the residual covariance over the waves unrestricted; the
+independence baseline keeps only one variance per wave (no covariances).
+
+With missing occasions the saturated model's full-information maximum is found by the EM algorithm
+for a multivariate normal regression with missing outcomes (Dempster, Laird & Rubin 1977; Little &
+Rubin 2002, ch. 11). We write it ourselves: none of our dependencies offers a multivariate-normal EM
+with missing values, and with complete predictors each step is two closed-form lines.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .likelihood import LOG_2PI
+
+EM_TOLERANCE = 1e-11     # relative change of the log-likelihood that ends the iterations
+EM_MAX_STEPS = 20_000
+
+
+@dataclass(frozen=True)
+class Saturated:
+    """The saturated model's maximum: coefficients (predictor columns x waves), covariance, log-likelihood."""
+
+    coefficients: np.ndarray
+    covariance: np.ndarray
+    log_likelihood: float
+    steps: int
+
+
+def _patterns(Y: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+    """(seen waves, persons) for every pattern of observed waves with at least one observation."""
+    seen = np.isfinite(Y)
+    patterns, which = np.unique(seen, axis=0, return_inverse=True)
+    return [(pattern, np.flatnonzero(which.ravel() == g)) for g, pattern in enumerate(patterns) if pattern.any()]
+
+
+def observed_log_likelihood(Y: np.ndarray, mean: np.ndarray, cov: np.ndarray) -> float:
+    """Normal log-likelihood of the observed entries of Y (persons x waves, NaN missing), person means `mean`."""
+    total = 0.0
+    for seen, rows in _patterns(Y):
+        L = np.linalg.cholesky(cov[np.ix_(seen, seen)])
+        white = np.linalg.solve(L, (Y[np.ix_(rows, seen)] - mean[np.ix_(rows, seen)]).T)
+        total -= 0.5 * (white.size * LOG_2PI + len(rows) * 2.0 * np.log(np.diag(L)).sum() + float((white ** 2).sum()))
+    return float(total)
+
+
+def _start(Y: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each wave's own regression on the persons seen there, and their residual variances."""
+    B = np.zeros((X.shape[1], Y.shape[1]))
+    variances = np.ones(Y.shape[1])
+    for w in range(Y.shape[1]):
+        seen = np.isfinite(Y[:, w])
+        B[:, w] = np.linalg.lstsq(X[seen], Y[seen, w], rcond=None)[0]
+        variances[w] = float(np.mean((Y[seen, w] - X[seen] @ B[:, w]) ** 2))
+    return B, variances
+
+
+def _expectations(Y: np.ndarray, mean: np.ndarray, cov: np.ndarray, patterns) -> tuple[np.ndarray, np.ndarray]:
+    """E-step: the completed outcomes and the summed conditional covariance of the missing parts."""
+    filled, extra = Y.copy(), np.zeros_like(cov)
+    for seen, rows in patterns:
+        gone = ~seen
+        if not gone.any():
+            continue
+        weights = np.linalg.solve(cov[np.ix_(seen, seen)], cov[np.ix_(seen, gone)])
+        residual = Y[np.ix_(rows, seen)] - mean[np.ix_(rows, seen)]
+        filled[np.ix_(rows, gone)] = mean[np.ix_(rows, gone)] + residual @ weights
+        extra[np.ix_(gone, gone)] += len(rows) * (cov[np.ix_(gone, gone)] - cov[np.ix_(gone, seen)] @ weights)
+    return filled, extra
+
+
+def saturated(Y: np.ndarray, X: np.ndarray) -> Saturated:
+    """Maximum of the saturated model: Y (persons x waves, NaN missing) on X (persons x columns, complete)."""
+    keep = np.isfinite(Y).any(axis=1)
+    Y, X = Y[keep], X[keep]
+    patterns = _patterns(Y)
+    B, variances = _start(Y, X)
+    cov = np.diag(variances)
+    solve_x = np.linalg.pinv(X)
+    before, steps = -np.inf, 0
+    for steps in range(1, EM_MAX_STEPS + 1):
+        filled, extra = _expectations(Y, X @ B, cov, patterns)
+        B = solve_x @ filled
+        residual = filled - X @ B
+        cov = (residual.T @ residual + extra) / len(Y)
+        now = observed_log_likelihood(Y, X @ B, cov)
+        if now - before <= EM_TOLERANCE * max(1.0, abs(now)):
+            break
+        before = now
+    return Saturated(B, cov, now, steps)
+
+
+def independence_log_likelihood(Y: np.ndarray, X: np.ndarray) -> float:
+    """Maximum of the baseline: each wave its own regression on X and its own variance, no covariances."""
+    B, variances = _start(Y, X)
+    counts = np.isfinite(Y).sum(axis=0)
+    return float(-0.5 * (counts * (LOG_2PI + np.log(variances) + 1.0)).sum())
