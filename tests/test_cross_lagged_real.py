@@ -387,3 +387,24 @@ def test_report_names_the_library_used_and_the_terminal_says_the_likelihoods_dif
     console = Console(record=True, width=200)
     terminal.render(rec, console)
     assert "The two log-likelihoods are different quantities" in console.export_text()
+
+
+def test_wage_panel_clpm_absolute_fit_from_the_sample_moments(wages):
+    """The wide CLPM against the saturated model of all 14 observed values (normal log-likelihood of the
+    ML sample covariance, common practice); the long regressions take the first wave as given: a reason."""
+    frame, rec = wages["own"]
+    Y = np.column_stack([frame.pivot(index="worker", columns="year", values=name).to_numpy(float)[:, t]
+                         for t in range(7) for name in OUTCOMES])      # wave by wave, both outcomes
+    n, p = Y.shape
+    S = np.cov(Y, rowvar=False, bias=True)
+    saturated = -0.5 * n * (p * math.log(2 * math.pi) + np.linalg.slogdet(S)[1] + p)
+    fit = rec.absolute_fit
+    assert fit.saturated_log_likelihood == pytest.approx(saturated, abs=1e-6)
+    assert fit.moments == p + p * (p + 1) // 2 == 119
+    free = len(rec.solution.model.labels)
+    statistic = 2 * (saturated - rec.log_likelihood["sem"])
+    assert (fit.sem.parameters, fit.sem.df) == (free, 119 - free)
+    assert fit.sem.chi_square == pytest.approx(statistic, rel=1e-6)
+    data = json.loads(to_json(rec))["absolute_fit"]
+    assert data["mixed"] is None and data["mixed_reason"].startswith("its lagged regressions take the first wave")
+    assert data["sem"]["rmsea"] == pytest.approx(math.sqrt(max(statistic - fit.sem.df, 0) / (fit.sem.df * (n - 1))))
