@@ -130,8 +130,16 @@ def _observed_data_maximum(Y: np.ndarray, X: np.ndarray | None = None) -> float:
         L = np.zeros((p, p))
         L[rows, cols] = theta[k * p:]
         cov = L @ L.T
-        return sum(multivariate_normal(np.zeros(pattern.sum()), cov[np.ix_(pattern, pattern)])
-                   .logpdf(Y[who][:, pattern] - mean[who][:, pattern]).sum() for pattern, who in groups)
+        total = 0.0
+        for pattern, who in groups:
+            try:
+                L = np.linalg.cholesky(cov[np.ix_(pattern, pattern)])
+            except np.linalg.LinAlgError:
+                return -np.inf
+            white = np.linalg.solve(L, (Y[who][:, pattern] - mean[who][:, pattern]).T)
+            total -= 0.5 * (white.size * math.log(2 * math.pi) + who.sum() * 2 * np.log(np.abs(np.diag(L))).sum()
+                            + (white ** 2).sum())
+        return total
 
     start_b = np.zeros((k, p))
     start_b[0] = np.nanmean(Y, axis=0)

@@ -39,16 +39,6 @@ def _patterns(Y: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
     return [(pattern, np.flatnonzero(which.ravel() == g)) for g, pattern in enumerate(patterns) if pattern.any()]
 
 
-def observed_log_likelihood(Y: np.ndarray, mean: np.ndarray, cov: np.ndarray) -> float:
-    """Normal log-likelihood of the observed entries of Y (persons x waves, NaN missing), person means `mean`."""
-    total = 0.0
-    for seen, rows in _patterns(Y):
-        L = np.linalg.cholesky(cov[np.ix_(seen, seen)])
-        white = np.linalg.solve(L, (Y[np.ix_(rows, seen)] - mean[np.ix_(rows, seen)]).T)
-        total -= 0.5 * (white.size * LOG_2PI + len(rows) * 2.0 * np.log(np.diag(L)).sum() + float((white ** 2).sum()))
-    return float(total)
-
-
 def _start(Y: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Each wave's own regression on the persons seen there, and their residual variances."""
     B = np.zeros((X.shape[1], Y.shape[1]))
@@ -60,18 +50,21 @@ def _start(Y: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return B, variances
 
 
-def _expectations(Y: np.ndarray, mean: np.ndarray, cov: np.ndarray, patterns) -> tuple[np.ndarray, np.ndarray]:
-    """E-step: the completed outcomes and the summed conditional covariance of the missing parts."""
-    filled, extra = Y.copy(), np.zeros_like(cov)
+def _e_step(Y: np.ndarray, mean: np.ndarray, cov: np.ndarray, patterns) -> tuple[np.ndarray, np.ndarray, float]:
+    """The completed outcomes, the summed conditional covariance of the missing parts, and the observed-data
+    log-likelihood at these parameters (one factorisation per pattern serves all three)."""
+    filled, extra, total = Y.copy(), np.zeros_like(cov), 0.0
     for seen, rows in patterns:
-        gone = ~seen
-        if not gone.any():
-            continue
-        weights = np.linalg.solve(cov[np.ix_(seen, seen)], cov[np.ix_(seen, gone)])
+        L = np.linalg.cholesky(cov[np.ix_(seen, seen)])
         residual = Y[np.ix_(rows, seen)] - mean[np.ix_(rows, seen)]
-        filled[np.ix_(rows, gone)] = mean[np.ix_(rows, gone)] + residual @ weights
-        extra[np.ix_(gone, gone)] += len(rows) * (cov[np.ix_(gone, gone)] - cov[np.ix_(gone, seen)] @ weights)
-    return filled, extra
+        white = np.linalg.solve(L, residual.T)
+        total -= 0.5 * (white.size * LOG_2PI + len(rows) * 2.0 * np.log(np.diag(L)).sum() + float((white ** 2).sum()))
+        gone = ~seen
+        if gone.any():
+            weights = np.linalg.solve(L.T, np.linalg.solve(L, cov[np.ix_(seen, gone)]))
+            filled[np.ix_(rows, gone)] = mean[np.ix_(rows, gone)] + residual @ weights
+            extra[np.ix_(gone, gone)] += len(rows) * (cov[np.ix_(gone, gone)] - cov[np.ix_(gone, seen)] @ weights)
+    return filled, extra, float(total)
 
 
 def saturated(Y: np.ndarray, X: np.ndarray) -> Saturated:
@@ -84,14 +77,13 @@ def saturated(Y: np.ndarray, X: np.ndarray) -> Saturated:
     solve_x = np.linalg.pinv(X)
     before, steps = -np.inf, 0
     for steps in range(1, EM_MAX_STEPS + 1):
-        filled, extra = _expectations(Y, X @ B, cov, patterns)
-        B = solve_x @ filled
-        residual = filled - X @ B
-        cov = (residual.T @ residual + extra) / len(Y)
-        now = observed_log_likelihood(Y, X @ B, cov)
+        filled, extra, now = _e_step(Y, X @ B, cov, patterns)   # `now`: the log-likelihood at B, cov
         if now - before <= EM_TOLERANCE * max(1.0, abs(now)):
             break
         before = now
+        B = solve_x @ filled
+        residual = filled - X @ B
+        cov = (residual.T @ residual + extra) / len(Y)
     return Saturated(B, cov, now, steps)
 
 
