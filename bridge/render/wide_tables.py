@@ -22,7 +22,7 @@ def wide_parameters_grid(parameters: tuple[FixedEffect, ...], confidence: float 
                  "where this p-value is conservative.",))
 
 
-_FORMS = (("wide form (SEM)", "sem"), ("long form (mixed model)", "mixed"))
+_FORMS = (("wide form (SEM)", "sem"), ("long form", "mixed"))
 
 
 def _form_row(name: str, fit) -> tuple:
