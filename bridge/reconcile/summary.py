@@ -1,8 +1,8 @@
 """The numbers behind the report's tables, computed once from a reconciliation.
 
 The mixed-model summary holds the long form's fixed effects (estimate, standard
-error, z, p, 95% interval), its variance components (listed, and as the person effects'
-covariance matrix with correlations and the residual variance) and its fit statistics. The correspondence lines put every quantity's two estimates side by side
+error, z, p, 95% interval), its person effects' covariance matrix (with standard errors and
+correlations) and residual variance, and its fit statistics. The correspondence lines put every quantity's two estimates side by side
 with the verdict and the causes that explain a difference. Renderers only lay these
 out; nothing here depends on an output format.
 
@@ -42,20 +42,6 @@ class FixedEffect:
 
 
 @dataclass(frozen=True)
-class VarianceComponent:
-    """A variance (with its standard deviation), a covariance (with its correlation) or the residual variance."""
-
-    key: Key
-    name: str
-    kind: str            # "variance", "covariance" or "residual"
-    estimate: float
-    se: float
-    sd: float | None = None
-    correlation: float | None = None
-    se_flag: str = ""    # "boundary": the solution is on the boundary of its space; the SE is not an ordinary one
-
-
-@dataclass(frozen=True)
 class PersonEffectMatrix:
     """The person effects' covariance matrix with its standard errors, and the residual variance.
 
@@ -67,6 +53,12 @@ class PersonEffectMatrix:
     covariance: tuple[tuple[Estimate, ...], ...]
     correlation: tuple[tuple[float | None, ...], ...]
     residual: Estimate | None
+
+    @property
+    def parameters(self) -> int:
+        """Free variance parameters: the matrix's lower triangle and the residual variance."""
+        q = len(self.names)
+        return q * (q + 1) // 2 + (self.residual is not None)
 
 
 @dataclass(frozen=True)
@@ -87,9 +79,8 @@ class MixedModelSummary:
     """The long form's table: fixed effects, variance components, fit statistics."""
 
     fixed: tuple[FixedEffect, ...]
-    variances: tuple[VarianceComponent, ...]
+    person_effects: PersonEffectMatrix
     fit: FitStatistics
-    person_effects: PersonEffectMatrix | None = None
     confidence: float = CONFIDENCE
 
 
@@ -142,29 +133,6 @@ def _correlation(cov: float, first: float, second: float) -> float | None:
     return cov / math.sqrt(first * second) if first > 0 and second > 0 else None
 
 
-def _variance_components(rec: Reconciliation, values: dict[Key, Estimate]) -> tuple[VarianceComponent, ...]:
-    terms = rec.pair.mixed.random_terms
-    out = []
-    for i, second in enumerate(terms):
-        for first in terms[: i + 1]:
-            if first is second and var_key(first) in values:
-                v = values[var_key(first)]
-                out.append(VarianceComponent(var_key(first), first.value, "variance", v.estimate, v.se,
-                                             sd=math.sqrt(v.estimate) if v.estimate >= 0 else None,
-                                             se_flag=v.se_flag))
-            elif first is not second and cov_key(first, second) in values:
-                c = values[cov_key(first, second)]
-                a, b = values.get(var_key(first)), values.get(var_key(second))
-                r = _correlation(c.estimate, a.estimate, b.estimate) if a and b else None
-                out.append(VarianceComponent(cov_key(first, second), f"{first.value}, {second.value}", "covariance",
-                                             c.estimate, c.se, correlation=r, se_flag=c.se_flag))
-    if "var.residual" in values:
-        v = values["var.residual"]
-        out.append(VarianceComponent("var.residual", "residual", "residual", v.estimate, v.se,
-                                     sd=math.sqrt(v.estimate) if v.estimate >= 0 else None, se_flag=v.se_flag))
-    return tuple(out)
-
-
 def person_effect_matrix(rec: Reconciliation, values: dict[Key, Estimate]) -> PersonEffectMatrix:
     """The long form's person-effect covariance as a matrix over its random terms, with the residual variance."""
     terms = rec.pair.mixed.random_terms
@@ -198,10 +166,9 @@ def mixed_summary(rec: Reconciliation, confidence: float = CONFIDENCE) -> MixedM
     time = time_name(rec)
     fixed = tuple(wald(c.key, effect_name(c, time), values[c.key], confidence)
                   for c in rec.pair.mixed.fixed_columns if c.key in values)
-    variances = _variance_components(rec, values)
-    return MixedModelSummary(fixed=fixed, variances=variances,
-                             fit=_fit_statistics(rec, len(fixed), len(variances)),
-                             person_effects=person_effect_matrix(rec, values), confidence=confidence)
+    person_effects = person_effect_matrix(rec, values)
+    return MixedModelSummary(fixed=fixed, person_effects=person_effects,
+                             fit=_fit_statistics(rec, len(fixed), person_effects.parameters), confidence=confidence)
 
 
 def _line(row: QuantityRow, titles: dict[str, str]) -> CorrespondenceLine:
