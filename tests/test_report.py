@@ -134,6 +134,9 @@ def test_person_effects_are_a_matrix_with_correlations_above_the_diagonal(report
     md = text(files, "mixed-model.md")
     assert f"| intercept | {number(a['estimate'])} ({number(a['se'])}) | {number(r)} |" in md
     assert "| SD |" not in md and "| correlation |" not in md
+    shown = f"{number(c['estimate'])} ({number(c['se'])})"
+    assert f"slope & {number(b['estimate'])} ({number(b['se'])}) & {shown}" in text(files, "mixed-model.tex")
+    assert f"<td class=\"num\">{shown}</td>" in text(files, "report.html")
 
 
 def test_under_reml_the_information_criteria_use_the_reml_criterion(report):
