@@ -196,3 +196,20 @@ def test_saturated_regression_on_predictors_with_missing_occasions_and_own_times
                                                abs=1e-4)
     assert fit.mixed is None and fit.mixed_reason.startswith("it was fitted at each occasion's own time")
     assert fit.note.startswith("The wide form places each occasion on its nearest wave")
+
+
+def test_too_few_persons_for_a_saturated_model_is_said_in_words(tmp_path):
+    # Orthodont (Potthoff & Roy 1964): the first 4 children at ages 8-14. The residuals of N persons around
+    # their means span at most N - 1 dimensions, so the ML covariance of 4 waves is singular (common practice).
+    from conftest import write_case
+    from test_exact_maxima import description
+
+    data = frame("Orthodont")
+    data = data[data["person"].isin(data["person"].unique()[:4])]
+    rec = bridge.run(write_case(tmp_path, data, description("Orthodont", "ml", 1), "few"))
+    fit = json.loads(to_json(rec))["absolute_fit"]
+    assert fit["sem"] is None and fit["mixed"] is None and fit["saturated_log_likelihood"] is None
+    assert fit["reason"] == ("the saturated model needs at least as many persons (4) as variables and predictor "
+                             "columns together (4 + 1) to have a maximum")
+    files = report_files(report_content(rec))
+    assert "Not computed: the saturated model needs at least as many persons (4)" in files["wide-form.md"].decode()

@@ -14,7 +14,7 @@ import numpy as np
 from ..compile import CompiledGrowth, CompiledPair, GrowthParameters
 from .fit_indices import FormFit, form_fit
 from .likelihood import Referee
-from .saturated import Saturated, independence_log_likelihood, saturated
+from .saturated import NoSaturatedMaximum, Saturated, independence_log_likelihood, saturated
 
 
 @dataclass(frozen=True)
@@ -133,7 +133,10 @@ def references(Y: np.ndarray, X: np.ndarray) -> References:
 def growth_absolute_fit(pair: CompiledPair, sem: GrowthParameters, mixed: GrowthParameters,
                         certified: tuple[bool, bool]) -> AbsoluteFit:
     """Saturated model, baseline and each form's indices for a growth model; `certified` per form (sem, mixed)."""
-    refs = references(*_wide_data(pair.sem))
+    try:
+        refs = references(*_wide_data(pair.sem))
+    except NoSaturatedMaximum as problem:
+        return AbsoluteFit.unavailable(str(problem))
 
     def judged(compiled: CompiledGrowth, params: GrowthParameters, equal: bool, reason: str):
         return refs.judge(_score(compiled, params), _free_parameters(compiled, equal),

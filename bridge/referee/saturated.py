@@ -22,6 +22,10 @@ EM_TOLERANCE = 1e-11     # relative change of the log-likelihood that ends the i
 EM_MAX_STEPS = 20_000
 
 
+class NoSaturatedMaximum(ValueError):
+    """The saturated model has no maximum on these data (the message says why, in words)."""
+
+
 @dataclass(frozen=True)
 class Saturated:
     """The saturated model's maximum: coefficients (predictor columns x waves), covariance, log-likelihood."""
@@ -71,13 +75,20 @@ def saturated(Y: np.ndarray, X: np.ndarray) -> Saturated:
     """Maximum of the saturated model: Y (persons x waves, NaN missing) on X (persons x columns, complete)."""
     keep = np.isfinite(Y).any(axis=1)
     Y, X = Y[keep], X[keep]
+    if len(Y) < Y.shape[1] + X.shape[1]:    # the residuals of N persons on k columns span at most N - k dimensions
+        raise NoSaturatedMaximum(f"the saturated model needs at least as many persons ({len(Y)}) as variables and "
+                                 f"predictor columns together ({Y.shape[1]} + {X.shape[1]}) to have a maximum")
     patterns = _patterns(Y)
     B, variances = _start(Y, X)
     cov = np.diag(variances)
     solve_x = np.linalg.pinv(X)
     before, steps = -np.inf, 0
     for steps in range(1, EM_MAX_STEPS + 1):
-        filled, extra, now = _e_step(Y, X @ B, cov, patterns)   # `now`: the log-likelihood at B, cov
+        try:
+            filled, extra, now = _e_step(Y, X @ B, cov, patterns)   # `now`: the log-likelihood at B, cov
+        except np.linalg.LinAlgError:
+            raise NoSaturatedMaximum("the saturated model's covariance becomes singular on these data (some "
+                                     "waves are never observed together, or vary too little)") from None
         if now - before <= EM_TOLERANCE * max(1.0, abs(now)):
             break
         before = now

@@ -10,6 +10,7 @@ import numpy as np
 
 from ...compile.path import PathModel
 from ...referee.absolute_fit import NOT_CERTIFIED, AbsoluteFit, references
+from ...referee.saturated import NoSaturatedMaximum
 from ...referee.path import PathReferee
 from .model import CompiledPanel
 
@@ -24,7 +25,10 @@ def panel_absolute_fit(compiled: CompiledPanel, model: PathModel, wide: dict[str
     outcome = np.array([int(name[1:].split("_")[0]) for name in model.observed])
     scale = np.asarray(compiled.scales)[outcome]           # internal = user x scale
     Y = frame / scale
-    refs = references(Y, np.ones((len(Y), 1)))
+    try:
+        refs = references(Y, np.ones((len(Y), 1)))
+    except NoSaturatedMaximum as problem:
+        return AbsoluteFit.unavailable(str(problem))
     values = compiled.values_from_user(wide)
     log_likelihood = PathReferee(model, frame).log_likelihood(values) + compiled.log_shift(
         compiled.panel.observed_by_outcome())
